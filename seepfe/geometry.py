@@ -1,0 +1,213 @@
+"""Geometry of a section: polygon checks, the tiling of zones, boundaries on the outline, and the
+planar straight-line graph (points, segments, zone loops) that the mesher receives.
+
+Every fault raises :class:`~seepfe.errors.SectionError` with a one-line message that names the zone
+or boundary and where the fault is.  Coordinates are in m.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import shapely
+from scipy.sparse import coo_matrix
+from scipy.sparse.csgraph import connected_components
+from scipy.spatial import cKDTree
+from shapely.geometry import LineString, MultiPolygon, Polygon
+from shapely.ops import unary_union
+
+from .errors import SectionError
+
+__all__ = ["Graph", "clean_polygon", "check_tiling", "build_graph", "fmt_xy"]
+
+
+def fmt_xy(p) -> str:
+    """Format a point for a message: ``(12.5, 3.0)``."""
+    return f"({float(p[0]):.6g}, {float(p[1]):.6g})"
+
+
+def clean_polygon(label: str, pts, tol: float) -> np.ndarray:
+    """Return a polygon's vertices as an (n, 2) counter-clockwise array without a closing repeat.
+
+    Raises SectionError if it has fewer than 3 distinct vertices, no area, or crosses itself.
+    """
+    p = np.asarray(pts, dtype=float)
+    # drop consecutive repeats, and the closing repeat
+    keep = np.ones(len(p), bool)
+    keep[1:] = np.linalg.norm(np.diff(p, axis=0), axis=1) > tol
+    p = p[keep]
+    if len(p) > 1 and np.linalg.norm(p[0] - p[-1]) <= tol:
+        p = p[:-1]
+    if len(p) < 3:
+        raise SectionError(f"{label}: polygon needs at least 3 distinct points, got {len(p)}")
+    area2 = np.sum(p[:, 0] * np.roll(p[:, 1], -1) - np.roll(p[:, 0], -1) * p[:, 1])
+    scale = np.ptp(p, axis=0).max()
+    if abs(area2) <= 2 * tol * scale:
+        raise SectionError(f"{label}: polygon has zero area (its points lie on one line)")
+    poly = Polygon(p)
+    if not poly.is_valid:
+        reason = shapely.is_valid_reason(poly)
+        where = _reason_point(reason)
+        what = "crosses itself" if "Self-intersection" in reason or "Ring" in reason else reason
+        raise SectionError(f"{label}: polygon {what}" + (f" near {where}" if where else ""))
+    if area2 < 0:
+        p = p[::-1].copy()
+    return p
+
+
+def _reason_point(reason: str) -> str | None:
+    if "[" in reason and "]" in reason:
+        try:
+            xy = [float(v) for v in reason[reason.index("[") + 1:reason.index("]")].split()][:2]
+            return fmt_xy(xy)
+        except ValueError:
+            return None
+    return None
+
+
+def check_tiling(names: list[str], polys: list[np.ndarray], extent: float) -> Polygon:
+    """Check that zones do not overlap and join into one piece without gaps; return the outline."""
+    shp = [Polygon(p) for p in polys]
+    area_tol = 1e-9 * extent * extent
+    tree = shapely.STRtree(shp)
+    left, right = tree.query(shp, predicate="intersects")
+    for i, j in zip(left.tolist(), right.tolist()):
+        if i < j:
+            inter = shp[i].intersection(shp[j])
+            if inter.area > area_tol:
+                where = fmt_xy(inter.representative_point().coords[0])
+                raise SectionError(f"zones '{names[i]}' and '{names[j]}' overlap by "
+                                   f"{inter.area:.4g} m2 near {where}")
+    union = unary_union(shp)
+    if isinstance(union, MultiPolygon):
+        parts = sorted(union.geoms, key=lambda g: g.area)
+        small = parts[0]
+        who = [names[i] for i, s in enumerate(shp) if s.representative_point().within(small)]
+        raise SectionError(f"zone '{who[0] if who else '?'}' is a disconnected piece: it does not share an "
+                           f"edge with the rest of the section (near {fmt_xy(small.representative_point().coords[0])})")
+    for ring in union.interiors:
+        hole = Polygon(ring)
+        if hole.area > area_tol:
+            raise SectionError(f"gap between zones near {fmt_xy(hole.representative_point().coords[0])} "
+                               f"({hole.area:.4g} m2): zones must tile the section")
+    return union
+
+
+@dataclass(frozen=True)
+class Graph:
+    """Planar straight-line graph of the section, what the mesher needs and nothing more.
+
+    points: (P, 2) float, m. segments: (S, 2) int point indices. loops: per zone, signed segment
+    indices (+s runs segments[s] forward, -(s+1) backward) in counter-clockwise order.
+    outline: (S,) bool, segment on the outline. boundary: (S,) int index into the boundaries,
+    -1 where none (no-flow or internal).
+    """
+
+    points: np.ndarray
+    segments: np.ndarray
+    loops: tuple
+    outline: np.ndarray
+    boundary: np.ndarray
+
+
+def _dist_to_segment(p: np.ndarray, a: np.ndarray, b: np.ndarray):
+    """Distances of points p (n, 2) to segment ab and their parameters t along it."""
+    d = b - a
+    L2 = float(d @ d)
+    t = ((p - a) @ d) / L2
+    tc = np.clip(t, 0.0, 1.0)
+    return np.linalg.norm(p - (a + tc[:, None] * d), axis=1), t
+
+
+def _on_polyline(p: np.ndarray, line: np.ndarray, tol: float) -> np.ndarray:
+    """Mask of points p (n, 2) within tol of the polyline."""
+    hit = np.zeros(len(p), bool)
+    for a, b in zip(line[:-1], line[1:]):
+        if np.linalg.norm(b - a) <= tol:
+            continue
+        dist, _ = _dist_to_segment(p, a, b)
+        hit |= dist <= tol
+    return hit
+
+
+def build_graph(zone_names: list[str], polys: list[np.ndarray], outline: Polygon,
+                bnames: list[str], blines: list[np.ndarray], tol: float) -> Graph:
+    """Join zone polygons into one conformal graph and map outline segments to boundaries.
+
+    A vertex of one zone (or of a boundary polyline) that lies on another zone's edge is inserted
+    into that edge, so T-junctions mesh conformally and boundaries begin and end at mesh nodes.
+    """
+    # unique points, merged within tol
+    raw = np.vstack(polys + [bl for bl in blines])
+    pairs = cKDTree(raw).query_pairs(tol, output_type="ndarray")
+    adj = coo_matrix((np.ones(len(pairs)), (pairs[:, 0], pairs[:, 1])), shape=(len(raw), len(raw)))
+    _, label = connected_components(adj, directed=False)
+    _, first, inv = np.unique(label, return_index=True, return_inverse=True)
+    points = raw[first]
+
+    # check the boundaries lie on the outline
+    ob = outline.boundary
+    band = ob.buffer(tol * 4)
+    for name, bl in zip(bnames, blines):
+        line = LineString(bl)
+        off = line.difference(band)
+        if off.length > tol * 10:
+            c = off.geoms[0].coords[0] if hasattr(off, "geoms") else off.coords[0]
+            raise SectionError(f"boundary '{name}': polyline leaves the outline of the section near "
+                               f"{fmt_xy(c)}")
+
+    # insert points lying on each zone edge
+    key_to_seg: dict[tuple[int, int], int] = {}
+    segs: list[tuple[int, int]] = []
+    uses: list[int] = []
+    loops = []
+    off = 0
+    for poly in polys:
+        ids = inv[off:off + len(poly)]
+        off += len(poly)
+        ring: list[int] = []
+        for k in range(len(ids)):
+            a, b = ids[k], ids[(k + 1) % len(ids)]
+            ring.append(int(a))
+            dist, t = _dist_to_segment(points, points[a], points[b])
+            L = np.linalg.norm(points[b] - points[a])
+            on = (dist <= tol) & (t * L > tol) & ((1 - t) * L > tol)
+            on[[a, b]] = False
+            ins = np.flatnonzero(on)
+            ring.extend(int(i) for i in ins[np.argsort(t[ins])])
+        loop = []
+        for k in range(len(ring)):
+            a, b = ring[k], ring[(k + 1) % len(ring)]
+            key = (a, b) if a < b else (b, a)
+            s = key_to_seg.get(key)
+            if s is None:
+                s = len(segs)
+                key_to_seg[key] = s
+                segs.append(key)
+                uses.append(0)
+            uses[s] += 1
+            loop.append(s if a == key[0] else -(s + 1))
+        loops.append(tuple(loop))
+    segments = np.array(segs, dtype=np.int64)
+    outline_mask = np.array(uses) == 1
+
+    # map outline segments to boundaries (both ends and the midpoint on the polyline)
+    boundary = np.full(len(segments), -1, dtype=np.int64)
+    a, b = points[segments[:, 0]], points[segments[:, 1]]
+    mid = 0.5 * (a + b)
+    for bi, (name, bl) in enumerate(zip(bnames, blines)):
+        hit = (_on_polyline(a, bl, tol * 4) & _on_polyline(b, bl, tol * 4)
+               & _on_polyline(mid, bl, tol * 4) & outline_mask)
+        clash = hit & (boundary >= 0)
+        if clash.any():
+            s = int(np.flatnonzero(clash)[0])
+            other = bnames[boundary[s]]
+            raise SectionError(f"boundaries '{other}' and '{name}' both claim the outline edge from "
+                               f"{fmt_xy(a[s])} to {fmt_xy(b[s])}")
+        if not hit.any():
+            raise SectionError(f"boundary '{name}': polyline covers no edge of the outline "
+                               f"(it starts at {fmt_xy(bl[0])})")
+        boundary[hit] = bi
+    return Graph(points=points, segments=segments, loops=tuple(loops), outline=outline_mask,
+                 boundary=boundary)

@@ -1,0 +1,315 @@
+"""Triangular meshes of a section: gmsh for the coarse mesh, numpy for splitting and P2 nodes.
+
+gmsh is driven through its Python API, headless and single-threaded (so the same input gives the
+same mesh), and finalised after every call, so no state leaks between solves and meshing works in
+worker processes.  The zones arrive as one conformal planar graph (:mod:`seepfe.geometry`), so
+shared edges are shared curves and the mesh is conformal across zones by construction.
+
+Large meshes are made coarse and split: each split turns every triangle into four similar ones,
+which keeps the quality of the coarse mesh and is far faster than meshing fine in gmsh.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import MeshError, SectionError
+from .section import Section
+
+__all__ = ["Mesh", "make_mesh", "estimate_triangles", "split_triangles", "add_midpoints"]
+
+#: a coarse gmsh mesh above this many triangles is made by splitting a coarser one instead
+SPLIT_ABOVE = 120_000
+_EQ = math.sqrt(3.0) / 4.0      # area of the equilateral triangle of unit side
+
+
+@dataclass(frozen=True, eq=False)
+class Mesh:
+    """Geometry and tags only; materials and boundary values are joined at assembly time.
+
+    Attributes
+    ----------
+    points : (N, 2) float
+        Node coordinates, m. Vertices first, then (order 2) edge midpoints.
+    cells : (E, 3) or (E, 6) int
+        Counter-clockwise vertices, then (order 2) midpoints of edges 01, 12, 20.
+    zone : (E,) int
+        Zone index of each element (into ``section.spec.zones``).
+    edges : (B, 2) or (B, 3) int
+        Outline edges: end nodes, then (order 2) the midpoint node.
+    edge_boundary : (B,) int
+        Index of the boundary each outline edge belongs to (into ``section.spec.boundaries``); -1 = no-flow.
+    order : int
+        1 (linear) or 2 (quadratic) triangles.
+    """
+
+    points: np.ndarray
+    cells: np.ndarray
+    zone: np.ndarray
+    edges: np.ndarray
+    edge_boundary: np.ndarray
+    order: int
+    n_vertices: int
+    stats: dict = field(default_factory=dict)
+
+    @property
+    def n_nodes(self) -> int:
+        return len(self.points)
+
+    @property
+    def n_elements(self) -> int:
+        return len(self.cells)
+
+    @property
+    def triangles(self) -> np.ndarray:
+        """(E, 3) corner nodes."""
+        return self.cells[:, :3]
+
+    def boundary_nodes(self, b: int) -> np.ndarray:
+        """Sorted unique nodes on the edges of boundary index b."""
+        return np.unique(self.edges[self.edge_boundary == b])
+
+    def linear_triangles(self) -> np.ndarray:
+        """(E*k, 3) sub-triangles using every node: the mesh itself for P1, 4 per element for P2.
+
+        For plotting and contouring, which want piecewise-linear data on all nodes.
+        """
+        if self.order == 1:
+            return self.cells
+        c = self.cells
+        return np.concatenate([c[:, [0, 3, 5]], c[:, [3, 1, 4]], c[:, [5, 4, 2]], c[:, [3, 4, 5]]])
+
+
+def default_size(section: Section) -> float:
+    return section.spec.mesh.size or section.extent / 60.0
+
+
+def estimate_triangles(section: Section, size: float | None = None) -> float:
+    """Rough count of triangles the mesh spec will make (area over triangle area, plus refinement bands)."""
+    m = section.spec.mesh
+    S = size or default_size(section)
+    n = section.outline.area / (_EQ * S * S)
+    for r in m.refine:
+        rs = min(r.size, S)
+        w = r.width or rs
+        slope = 0.25
+        grow = (S - rs) / slope
+        if r.polyline is not None:
+            L = float(np.sum(np.linalg.norm(np.diff(np.asarray(r.polyline), axis=0), axis=1)))
+            band = 2 * L * (w / rs**2 + (1.0 / slope) * (1.0 / rs - 1.0 / S))
+            n += band / _EQ
+        else:
+            n += (math.pi * w * w / rs**2 + 2 * math.pi / slope**2 * math.log(S / rs)) / _EQ
+        del grow
+    return n
+
+
+def mesh_quality(points: np.ndarray, tri: np.ndarray) -> tuple[float, float]:
+    """Smallest angle (degrees) and worst radius ratio 2 r_in / r_circ (1 = equilateral) of P1 triangles."""
+    p = points[tri]
+    e = np.stack([p[:, 1] - p[:, 0], p[:, 2] - p[:, 1], p[:, 0] - p[:, 2]], axis=1)
+    L = np.linalg.norm(e, axis=2)
+    area = 0.5 * np.abs(e[:, 0, 0] * e[:, 2, 1] - e[:, 0, 1] * e[:, 2, 0])
+    a, b, c = L[:, 0], L[:, 1], L[:, 2]
+    q = 16.0 * area**2 / (a * b * c * (a + b + c))  # = 2 r_in / R
+    cosang = np.stack([-(e[:, 0] * e[:, 2]).sum(1) / (a * c), -(e[:, 0] * e[:, 1]).sum(1) / (a * b),
+                       -(e[:, 1] * e[:, 2]).sum(1) / (b * c)], axis=1)
+    ang = np.degrees(np.arccos(np.clip(cosang, -1, 1)))
+    return float(ang.min()), float(q.min())
+
+
+def _edge_index(tri: np.ndarray, n_nodes: int):
+    """Unique undirected edges of triangles and the (E, 3) edge id of local edges 01, 12, 20."""
+    loc = np.stack([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [2, 0]]], axis=1).reshape(-1, 2)
+    key = np.sort(loc, axis=1)
+    k = key[:, 0].astype(np.int64) * n_nodes + key[:, 1]
+    uniq, inv = np.unique(k, return_inverse=True)
+    edges = np.stack([uniq // n_nodes, uniq % n_nodes], axis=1)
+    return edges, inv.reshape(-1, 3), uniq
+
+
+def _lookup_edges(uniq_keys: np.ndarray, pairs: np.ndarray, n_nodes: int) -> np.ndarray:
+    s = np.sort(pairs, axis=1)
+    return np.searchsorted(uniq_keys, s[:, 0].astype(np.int64) * n_nodes + s[:, 1])
+
+
+def split_triangles(points, tri, zone, bedges, btag):
+    """Split every triangle into 4 by its edge midpoints (vectorised). Boundary edges split with them."""
+    n = len(points)
+    edges, t2e, keys = _edge_index(tri, n)
+    mid = n + np.arange(len(edges))
+    pts = np.vstack([points, 0.5 * (points[edges[:, 0]] + points[edges[:, 1]])])
+    m01, m12, m20 = mid[t2e[:, 0]], mid[t2e[:, 1]], mid[t2e[:, 2]]
+    v0, v1, v2 = tri[:, 0], tri[:, 1], tri[:, 2]
+    new = np.concatenate([np.stack([v0, m01, m20], 1), np.stack([m01, v1, m12], 1),
+                          np.stack([m20, m12, v2], 1), np.stack([m01, m12, m20], 1)])
+    bm = mid[_lookup_edges(keys, bedges, n)]
+    nb = np.concatenate([np.stack([bedges[:, 0], bm], 1), np.stack([bm, bedges[:, 1]], 1)])
+    return pts, new, np.tile(zone, 4), nb, np.tile(btag, 2)
+
+
+def add_midpoints(points, tri, bedges):
+    """P2 nodes: append edge midpoints; return points, (E, 6) cells, (B, 3) boundary edges."""
+    n = len(points)
+    edges, t2e, keys = _edge_index(tri, n)
+    mid = n + np.arange(len(edges))
+    pts = np.vstack([points, 0.5 * (points[edges[:, 0]] + points[edges[:, 1]])])
+    cells = np.concatenate([tri, mid[t2e]], axis=1)
+    bm = mid[_lookup_edges(keys, bedges, n)]
+    return pts, cells, np.concatenate([bedges, bm[:, None]], axis=1)
+
+
+def _gmsh_mesh(section: Section, size: float, scale: float):
+    """Coarse P1 mesh from gmsh at sizes multiplied by scale. Returns points, tri, zone, bedges, btag."""
+    import gmsh
+
+    g = section.graph
+    spec = section.spec.mesh
+    S = size * scale
+    gmsh.initialize(readConfigFiles=False, interruptible=False)
+    try:
+        gmsh.option.setNumber("General.Terminal", 0)
+        gmsh.option.setNumber("General.Verbosity", 1)
+        gmsh.option.setNumber("General.NumThreads", 1)
+        gmsh.model.add("section")
+        geo = gmsh.model.geo
+        for i, (x, y) in enumerate(g.points):
+            geo.addPoint(float(x), float(y), 0.0, S, i + 1)
+        for s, (a, b) in enumerate(g.segments):
+            geo.addLine(int(a) + 1, int(b) + 1, s + 1)
+        surfaces = []
+        for zi, loop in enumerate(g.loops):
+            tags = [s + 1 if s >= 0 else s for s in loop]  # -(s+1) already means reversed segment s
+            cl = geo.addCurveLoop(tags, zi + 1)
+            surfaces.append(geo.addPlaneSurface([cl], zi + 1))
+        # refinement: free points sampled along each polyline feed distance/threshold fields
+        thresholds = []
+        ptag = len(g.points) + 1
+        for r in spec.refine:
+            rs = min(r.size * scale, S)
+            line = np.asarray(r.polyline if r.polyline is not None else [r.point], float)
+            samples = [line[:1]]
+            for a, b in zip(line[:-1], line[1:]):
+                L = float(np.linalg.norm(b - a))
+                k = max(1, min(20000, int(math.ceil(L / (0.5 * rs)))))
+                t = np.linspace(0, 1, k + 1)[1:, None]
+                samples.append(a + t * (b - a))
+            sp = np.vstack(samples)
+            tags = list(range(ptag, ptag + len(sp)))
+            for t_, (x, y) in zip(tags, sp):
+                geo.addPoint(float(x), float(y), 0.0, S, t_)
+            ptag += len(sp)
+            fd = gmsh.model.mesh.field.add("Distance")
+            gmsh.model.mesh.field.setNumbers(fd, "PointsList", tags)
+            ft = gmsh.model.mesh.field.add("Threshold")
+            w = (r.width or r.size) * scale
+            gmsh.model.mesh.field.setNumber(ft, "InField", fd)
+            gmsh.model.mesh.field.setNumber(ft, "SizeMin", rs)
+            gmsh.model.mesh.field.setNumber(ft, "SizeMax", S)
+            gmsh.model.mesh.field.setNumber(ft, "DistMin", w)
+            gmsh.model.mesh.field.setNumber(ft, "DistMax", w + 4.0 * (S - rs))
+            thresholds.append(ft)
+        geo.synchronize()
+        if thresholds:
+            fm = gmsh.model.mesh.field.add("Min")
+            gmsh.model.mesh.field.setNumbers(fm, "FieldsList", thresholds)
+            gmsh.model.mesh.field.setAsBackgroundMesh(fm)
+            gmsh.option.setNumber("Mesh.MeshSizeExtendFromBoundary", 0)
+        gmsh.option.setNumber("Mesh.MeshSizeMax", S)
+        gmsh.option.setNumber("Mesh.Algorithm", 6)
+        try:
+            gmsh.model.mesh.generate(2)
+        except Exception as e:  # gmsh raises a bare Exception with its last error
+            raise MeshError(f"{section.source}: gmsh could not mesh the section: {e}") from None
+        tags, xyz, _ = gmsh.model.mesh.getNodes()
+        order = np.argsort(tags)
+        tags, xyz = tags[order], xyz.reshape(-1, 3)[order, :2]
+        tri_l, zone_l = [], []
+        for zi, st in enumerate(surfaces):
+            et, _, en = gmsh.model.mesh.getElements(2, st)
+            if not len(et) or not len(en[0]):
+                raise MeshError(f"{section.source}: zone '{section.zone_names[zi]}' got no triangles; "
+                                f"its polygon may be too thin for mesh size {S:.3g} m")
+            t = np.asarray(en[0]).reshape(-1, 3)
+            tri_l.append(t)
+            zone_l.append(np.full(len(t), zi))
+        be_l, bt_l = [], []
+        for s in np.flatnonzero(g.outline):
+            et, _, en = gmsh.model.mesh.getElements(1, int(s) + 1)
+            e = np.asarray(en[0]).reshape(-1, 2)
+            be_l.append(e)
+            bt_l.append(np.full(len(e), g.boundary[s]))
+    finally:
+        gmsh.finalize()
+    tri = np.searchsorted(tags, np.concatenate(tri_l))
+    bedges = np.searchsorted(tags, np.concatenate(be_l))
+    zone = np.concatenate(zone_l)
+    # keep only nodes used by triangles (drops the free refinement points)
+    used = np.unique(tri)
+    remap = np.full(len(tags), -1)
+    remap[used] = np.arange(len(used))
+    pts = xyz[used]
+    tri, bedges = remap[tri], remap[bedges]
+    # counter-clockwise
+    p = pts[tri]
+    a2 = ((p[:, 1, 0] - p[:, 0, 0]) * (p[:, 2, 1] - p[:, 0, 1])
+          - (p[:, 2, 0] - p[:, 0, 0]) * (p[:, 1, 1] - p[:, 0, 1]))
+    tri[a2 < 0] = tri[a2 < 0][:, [0, 2, 1]]
+    return pts, tri, zone, bedges, np.concatenate(bt_l)
+
+
+def make_mesh(section: Section, order: int | None = None, size: float | None = None,
+              split: int | None = None) -> Mesh:
+    """Mesh a validated section.
+
+    Parameters
+    ----------
+    section : Section
+    order : {1, 2}, optional
+        Element order; default from the section's ``mesh.order`` (2).
+    size : float, optional
+        Element size in m; default from ``mesh.size`` or extent / 60.
+    split : int, optional
+        Number of 4-way splits after a coarser gmsh mesh; default chosen from the estimated count.
+
+    Raises
+    ------
+    SectionError
+        If the estimated number of triangles exceeds ``mesh.max_elements``.
+    """
+    ms = section.spec.mesh
+    order = order or ms.order
+    S = size or default_size(section)
+    est = estimate_triangles(section, S)
+    if est > ms.max_elements:
+        raise SectionError(f"{section.source}: mesh: size {S:.4g} m (with its refinements) would make "
+                           f"about {est:.3g} triangles, more than max_elements = {ms.max_elements}; "
+                           f"use a larger 'mesh.size' or raise 'mesh.max_elements'")
+    if split is None:
+        split = ms.split
+    if split is None:
+        split = 0
+        while est / 4**split > SPLIT_ABOVE and split < 3:
+            split += 1
+    t0 = time.perf_counter()
+    pts, tri, zone, be, bt = _gmsh_mesh(section, S, 2.0**split)
+    t1 = time.perf_counter()
+    for _ in range(split):
+        pts, tri, zone, be, bt = split_triangles(pts, tri, zone, be, bt)
+    min_angle, worst_q = mesh_quality(pts, tri)
+    nv = len(pts)
+    if order == 2:
+        pts, cells, be = add_midpoints(pts, tri, be)
+    else:
+        cells = tri
+    t2 = time.perf_counter()
+    stats = {"nodes": int(len(pts)), "vertices": int(nv), "elements": int(len(cells)), "order": int(order),
+             "size_m": float(S), "splits": int(split), "min_angle_deg": round(min_angle, 3),
+             "worst_quality": round(worst_q, 4), "gmsh_s": round(t1 - t0, 4), "mesh_s": round(t2 - t0, 4)}
+    return Mesh(points=pts, cells=cells.astype(np.int64), zone=zone.astype(np.int64),
+                edges=be.astype(np.int64), edge_boundary=bt.astype(np.int64), order=order,
+                n_vertices=nv, stats=stats)

@@ -1,0 +1,191 @@
+"""The result of a solve: heads, pressures, gradients, velocities and boundary flows.
+
+Units: heads m, pressure head m, pore pressure kPa, gradients m/m, velocities m/s (Darcy flux),
+flows m3/s per m of section (positive into the section).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from functools import cached_property
+
+import numpy as np
+
+from . import fem
+from .mesh import Mesh
+from .section import Section
+
+__all__ = ["Result"]
+
+CAUTION = ("These results support, and never replace, the judgement of a licensed engineer; "
+           "local codes and agency criteria govern.")
+
+
+@dataclass(eq=False)
+class Result:
+    """Steady head field on a mesh of a section, with what is derived from it.
+
+    Attributes
+    ----------
+    section, mesh : the inputs.
+    h : (N,) total head at the nodes, m.
+    reactions : (N,) consistent nodal inflow at the nodes, m3/s per m (non-zero on prescribed nodes).
+    solver_info : dict of solver figures (method, unknowns, passes, times).
+    """
+
+    section: Section
+    mesh: Mesh
+    h: np.ndarray
+    reactions: np.ndarray
+    load: np.ndarray
+    fixed: np.ndarray
+    element_K: np.ndarray = field(repr=False)
+    solver_info: dict = field(default_factory=dict)
+    matrix: object = field(default=None, repr=False)
+    face_nodes: np.ndarray = field(default=None, repr=False)
+    face_active: np.ndarray = field(default=None, repr=False)
+
+    # ----------------------------------------------------------------- nodal fields
+    @property
+    def total_head(self) -> np.ndarray:
+        """(N,) total head, m."""
+        return self.h
+
+    @property
+    def pressure_head(self) -> np.ndarray:
+        """(N,) pressure head h - y, m."""
+        return self.h - self.mesh.points[:, 1]
+
+    @property
+    def pore_pressure(self) -> np.ndarray:
+        """(N,) pore-water pressure gamma_w (h - y), kPa."""
+        return self.section.gamma_w * self.pressure_head
+
+    # ----------------------------------------------------------------- element fields
+    @cached_property
+    def _jac(self):
+        return fem.jacobians(self.mesh.points, self.mesh.cells)
+
+    def gradient_at(self, xi) -> np.ndarray:
+        """Head gradient (dh/dx, dh/dy) at reference point(s) xi of every element: (E, n, 2), m/m."""
+        xi = np.atleast_2d(np.asarray(xi, float))
+        G = fem.gradients(self.mesh.order, self._jac[0], xi)        # (E, n, nloc, 2)
+        return np.einsum("eqla,el->eqa", G, self.h[self.mesh.cells])
+
+    @cached_property
+    def element_gradient(self) -> np.ndarray:
+        """(E, 2) head gradient (dh/dx, dh/dy) at each element's centroid, m/m."""
+        return self.gradient_at([[1 / 3, 1 / 3]])[:, 0]
+
+    @cached_property
+    def velocity(self) -> np.ndarray:
+        """(E, 2) Darcy velocity -K grad h at each element's centroid, m/s."""
+        return -np.einsum("eab,eb->ea", self.element_K, self.element_gradient)
+
+    # ----------------------------------------------------------------- flows
+    @cached_property
+    def _flows(self) -> dict:
+        sec, m = self.section, self.mesh
+        kinds = [b.kind for b in sec.spec.boundaries]
+        reacting = [i for i, k in enumerate(kinds) if k != "flux"]
+        count = np.zeros(m.n_nodes)
+        nodesets = {}
+        for i in range(len(kinds)):
+            nodesets[i] = m.boundary_nodes(i)
+            if i in reacting:
+                count[nodesets[i]] += 1
+        out = {}
+        for i, b in enumerate(sec.spec.boundaries):
+            nd = nodesets[i]
+            if b.kind == "flux":
+                on = m.edge_boundary == i
+                L = np.linalg.norm(m.points[m.edges[on, 1]] - m.points[m.edges[on, 0]], axis=1)
+                out[b.name] = float(b.flux * L.sum())
+            else:
+                out[b.name] = float(np.sum(self.reactions[nd] / count[nd])) if len(nd) else 0.0
+        return out
+
+    def boundary_flow(self, name: str) -> float:
+        """Flow across a named boundary, m3/s per m of section, positive into the section."""
+        if name not in self._flows:
+            raise KeyError(self.section.boundary(name))  # raises with a 'did you mean'
+        return self._flows[name]
+
+    @property
+    def flows(self) -> dict:
+        """{boundary name: flow in m3/s per m, positive into the section}."""
+        return dict(self._flows)
+
+    @cached_property
+    def balance(self) -> dict:
+        """Global balance of the boundary flows (m3/s per m) and its relative error."""
+        f = np.array(list(self._flows.values()) or [0.0])
+        inflow, outflow = float(f[f > 0].sum()), float(-f[f < 0].sum())
+        net = float(f.sum())
+        return {"inflow_m3_s_per_m": inflow, "outflow_m3_s_per_m": outflow, "net_m3_s_per_m": net,
+                "relative_error": abs(net) / max(inflow, outflow, 1e-300)}
+
+    # ----------------------------------------------------------------- interpolation
+    @cached_property
+    def _finder(self):
+        from matplotlib.tri import Triangulation
+        p = self.mesh.points[: self.mesh.n_vertices]
+        tri = Triangulation(p[:, 0], p[:, 1], self.mesh.triangles)
+        return tri.get_trifinder()
+
+    def locate(self, points):
+        """Element index and reference coordinates (xi, eta) of points; element -1 outside the section."""
+        P = np.atleast_2d(np.asarray(points, float))
+        e = np.asarray(self._finder(P[:, 0], P[:, 1]), dtype=np.int64)
+        inv, _ = self._jac
+        ee = np.where(e >= 0, e, 0)
+        p0 = self.mesh.points[self.mesh.cells[ee, 0]]
+        xi = np.einsum("eab,eb->ea", inv[ee], P - p0)
+        return e, xi
+
+    def interpolate(self, values: np.ndarray, points) -> np.ndarray:
+        """Interpolate nodal values at points (n, 2) with the element shape functions; nan outside."""
+        e, xi = self.locate(points)
+        N = fem.shape(self.mesh.order, xi)
+        ee = np.where(e >= 0, e, 0)
+        out = np.einsum("nl,nl->n", N, values[self.mesh.cells[ee]])
+        out[e < 0] = np.nan
+        return out
+
+    def head(self, points) -> np.ndarray:
+        """Total head (m) at points, an (n, 2) array of x, y in m; nan outside the section."""
+        return self.interpolate(self.h, points)
+
+    # ----------------------------------------------------------------- reporting
+    def summary(self) -> dict:
+        """Plain-data summary: flows by boundary, balance, mesh and solver figures, input hash."""
+        from . import __version__
+        return {
+            "seepfe_version": __version__,
+            "title": self.section.title,
+            "source": self.section.source,
+            "input_sha256": self.section.input_hash,
+            "units": {"length": "m", "head": "m", "flow": "m3/s per m", "pressure": "kPa",
+                      "conductivity": "m/s"},
+            "flows_m3_s_per_m": self.flows,
+            "balance": self.balance,
+            "head_range_m": [float(self.h.min()), float(self.h.max())],
+            "mesh": dict(self.mesh.stats),
+            "solver": dict(self.solver_info),
+            "caution": CAUTION,
+        }
+
+    def __str__(self) -> str:
+        s = self.summary()
+        lines = [f"{self.section.title or self.section.source}",
+                 f"  mesh: {s['mesh']['elements']} P{self.mesh.order} triangles, {s['mesh']['nodes']} nodes",
+                 "  flows (m3/s per m, + into the section):"]
+        for k, v in s["flows_m3_s_per_m"].items():
+            lines.append(f"    {k:<20s} {v:+.4e}")
+        lines.append(f"  balance: relative error {s['balance']['relative_error']:.2e}")
+        lines.append(f"  head range: {s['head_range_m'][0]:.3f} to {s['head_range_m'][1]:.3f} m")
+        return "\n".join(lines)
+
+    def __repr__(self) -> str:
+        return (f"<Result {self.section.title!r}: {self.mesh.n_elements} elements, "
+                f"balance {self.balance['relative_error']:.1e}>")

@@ -1,0 +1,181 @@
+"""The section-file format as pydantic models.
+
+These models check types, ranges and which keys may appear; geometry (polygons, tiling, boundaries on
+the outline) is checked afterwards in :mod:`seepfe.geometry`. ``docs/section.schema.json`` is written
+from these models by ``scripts/write_schema.py``.
+
+Units: lengths m, conductivities m/s, unit weights kN/m3, fluxes m/s (m3/s per m2), angles degrees.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Annotated, Literal, Optional
+
+from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validator
+
+__all__ = ["MaterialSpec", "ZoneSpec", "BoundarySpec", "RefineSpec", "MeshSpec", "WaterSpec",
+           "SectionSpec"]
+
+
+def _finite(v: float) -> float:
+    if not math.isfinite(v):
+        raise ValueError(f"must be a finite number, got {v}")
+    return v
+
+
+def _positive(v: float) -> float:
+    _finite(v)
+    if v <= 0:
+        raise ValueError(f"must be > 0, got {v}")
+    return v
+
+
+Finite = Annotated[float, AfterValidator(_finite)]
+Positive = Annotated[float, AfterValidator(_positive)]
+Point = Annotated[list[Finite], Field(min_length=2, max_length=2)]
+
+_CFG = ConfigDict(extra="forbid", strict=True, frozen=True)
+
+
+class UnsaturatedSpec(BaseModel):
+    """van Genuchten (1980) retention with Mualem relative conductivity, for flow above the phreatic surface."""
+
+    model_config = _CFG
+    alpha: Positive = Field(description="van Genuchten alpha, 1/m")
+    n: Annotated[float, AfterValidator(_finite), Field(gt=1.0)] = Field(
+        description="van Genuchten n (> 1)")
+    kr_min: Annotated[float, Field(gt=0.0, lt=1.0)] = Field(
+        1e-6, description="floor of the relative conductivity (-), keeps the system regular")
+
+
+class MaterialSpec(BaseModel):
+    """A soil: isotropic ``k`` or principal ``kx``, ``ky`` with ``angle``; optional unit weight."""
+
+    model_config = _CFG
+    description: Optional[str] = None
+    k: Optional[Positive] = Field(None, description="isotropic saturated conductivity, m/s")
+    kx: Optional[Positive] = Field(None, description="principal conductivity along angle, m/s")
+    ky: Optional[Positive] = Field(None, description="principal conductivity across angle, m/s")
+    angle: Finite = Field(0.0, description="direction of kx, degrees counter-clockwise from +x")
+    unit_weight: Optional[Positive] = Field(None, description="saturated unit weight, kN/m3")
+    specific_gravity: Optional[Positive] = Field(None, description="Gs of the solids (-)")
+    void_ratio: Optional[Positive] = Field(None, description="void ratio e (-)")
+    d70: Optional[Positive] = Field(None, description="grain size d70, m (piping checks)")
+    unsaturated: Optional[UnsaturatedSpec] = None
+
+    @model_validator(mode="after")
+    def _one_conductivity(self):
+        has_k = self.k is not None
+        has_xy = self.kx is not None or self.ky is not None
+        if has_k and has_xy:
+            raise ValueError("give either 'k' or 'kx' and 'ky', not both")
+        if not has_k and not has_xy:
+            raise ValueError("missing conductivity: give 'k' or 'kx' and 'ky' (m/s)")
+        if has_xy and (self.kx is None or self.ky is None):
+            raise ValueError("'kx' and 'ky' go together: give both (m/s)")
+        if has_k and self.angle != 0.0:
+            raise ValueError("'angle' needs 'kx' and 'ky'; an isotropic 'k' has no direction")
+        return self
+
+
+class ZoneSpec(BaseModel):
+    """A simple polygon of one material. Zones tile the section."""
+
+    model_config = _CFG
+    name: Annotated[str, Field(min_length=1)]
+    material: str
+    polygon: list[Point] = Field(description="vertices [[x, y], ...] in m, either orientation")
+
+
+class BoundarySpec(BaseModel):
+    """A condition on the outline edges that lie on ``polyline``. Exactly one kind is given."""
+
+    model_config = _CFG
+    name: Annotated[str, Field(min_length=1)]
+    polyline: Annotated[list[Point], Field(min_length=2)]
+    head: Optional[Finite] = Field(None, description="prescribed total head, m")
+    seepage_face: bool = Field(False, description="h = y where water leaves, no flow where it would enter")
+    flux: Optional[Finite] = Field(None, description="normal inflow, m/s (positive into the section)")
+    drain: bool = Field(False, description="a drain at atmospheric pressure: takes water out, never in")
+    dry_above_level: bool = Field(
+        False, description="with 'head': the part of the polyline above the water level (y > head) is dry "
+                           "and acts as a seepage face instead (for river-stage sweeps on a fixed slope)")
+
+    @model_validator(mode="after")
+    def _one_kind(self):
+        kinds = [k for k, on in (("head", self.head is not None), ("seepage_face", self.seepage_face),
+                                 ("flux", self.flux is not None), ("drain", self.drain)) if on]
+        if len(kinds) != 1:
+            if not kinds:
+                raise ValueError("give one of 'head', 'seepage_face', 'flux' or 'drain'")
+            raise ValueError(f"give only one of {', '.join(repr(k) for k in kinds)}")
+        if self.dry_above_level and self.head is None:
+            raise ValueError("'dry_above_level' goes with 'head'")
+        return self
+
+    @property
+    def kind(self) -> str:
+        if self.head is not None:
+            return "head"
+        if self.flux is not None:
+            return "flux"
+        return "drain" if self.drain else "seepage_face"
+
+
+class RefineSpec(BaseModel):
+    """A smaller element size near a polyline or a point."""
+
+    model_config = _CFG
+    polyline: Optional[Annotated[list[Point], Field(min_length=2)]] = None
+    point: Optional[Point] = None
+    size: Positive = Field(description="element size on the polyline or at the point, m")
+    width: Optional[Positive] = Field(
+        None, description="distance over which the small size holds before it grows, m (default: size)")
+
+    @model_validator(mode="after")
+    def _one_place(self):
+        if (self.polyline is None) == (self.point is None):
+            raise ValueError("give either 'polyline' or 'point'")
+        return self
+
+
+class MeshSpec(BaseModel):
+    """Mesh controls. Every key is optional."""
+
+    model_config = _CFG
+    size: Optional[Positive] = Field(None, description="element size, m (default: extent / 60)")
+    refine: list[RefineSpec] = Field(default_factory=list)
+    order: Literal[1, 2] = Field(2, description="1: linear triangles, 2: quadratic triangles")
+    max_elements: Annotated[int, Field(gt=0)] = Field(
+        2_000_000, description="refuse meshes estimated larger than this")
+    split: Optional[Annotated[int, Field(ge=0, le=4)]] = Field(
+        None, description="mesh at size*2^split and split each triangle in 4, split times "
+                          "(default: chosen from the estimated size)")
+
+
+class WaterSpec(BaseModel):
+    model_config = _CFG
+    unit_weight: Positive = Field(9.81, description="unit weight of water, kN/m3")
+
+
+class SolverSpec(BaseModel):
+    model_config = _CFG
+    linear: Literal["auto", "direct", "amg"] = "auto"
+    tolerance: Positive = Field(1e-10, description="relative residual for the iterative solver")
+    max_iterations: Annotated[int, Field(gt=0)] = Field(
+        60, description="cap on seepage-face / nonlinear iterations")
+
+
+class SectionSpec(BaseModel):
+    """A whole section file."""
+
+    model_config = ConfigDict(extra="forbid", strict=True, frozen=True,
+                              json_schema_extra={"title": "seepfe section"})
+    title: str = ""
+    materials: Annotated[dict[str, MaterialSpec], Field(min_length=1)]
+    zones: Annotated[list[ZoneSpec], Field(min_length=1)]
+    boundaries: list[BoundarySpec] = Field(default_factory=list)
+    mesh: MeshSpec = Field(default_factory=MeshSpec)
+    water: WaterSpec = Field(default_factory=WaterSpec)
+    solver: SolverSpec = Field(default_factory=SolverSpec)

@@ -1,0 +1,294 @@
+"""Load and validate a section file into an immutable :class:`Section`.
+
+Two stages: the pydantic models of :mod:`seepfe.schema` check keys, types and ranges; then
+:mod:`seepfe.geometry` checks polygons, the tiling and the boundaries.  Each fault becomes a
+one-line :class:`~seepfe.errors.SectionError` naming the file, the item and what is wrong.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import json
+import math
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from pydantic import BaseModel, ValidationError
+from shapely.geometry import Polygon
+
+from . import geometry
+from .errors import SectionError
+from .schema import BoundarySpec, MaterialSpec, SectionSpec
+
+__all__ = ["Section", "load_section", "conductivity_tensor"]
+
+
+def conductivity_tensor(m: MaterialSpec) -> np.ndarray:
+    """The 2x2 conductivity tensor (m/s) of a material: ``R diag(kx, ky) R^T``.
+
+    >>> conductivity_tensor(MaterialSpec(kx=4.0, ky=1.0, angle=90.0)).round(12)
+    array([[1., 0.],
+           [0., 4.]])
+    """
+    if m.k is not None:
+        return np.array([[m.k, 0.0], [0.0, m.k]])
+    a = math.radians(m.angle)
+    c, s = math.cos(a), math.sin(a)
+    R = np.array([[c, -s], [s, c]])
+    return R @ np.diag([m.kx, m.ky]) @ R.T
+
+
+@dataclass(frozen=True, eq=False)
+class Section:
+    """A validated section: the parsed spec plus the geometry the mesher and solver need.
+
+    Build it with :func:`load_section`; do not construct it by hand.
+    """
+
+    spec: SectionSpec
+    source: str
+    data: dict = field(repr=False)
+    input_hash: str
+    polygons: tuple = field(repr=False)       # per zone, (n, 2) counter-clockwise vertices, m
+    outline: Polygon = field(repr=False)
+    extent: float = 0.0                       # largest side of the bounding box, m
+    tol: float = 0.0                          # geometric tolerance, m
+    graph: geometry.Graph = field(default=None, repr=False)
+
+    @property
+    def title(self) -> str:
+        return self.spec.title
+
+    @property
+    def zone_names(self) -> list[str]:
+        return [z.name for z in self.spec.zones]
+
+    @property
+    def boundary_names(self) -> list[str]:
+        return [b.name for b in self.spec.boundaries]
+
+    def boundary(self, name: str) -> BoundarySpec:
+        for b in self.spec.boundaries:
+            if b.name == name:
+                return b
+        raise KeyError(_unknown("boundary", name, self.boundary_names))
+
+    def zone_tensors(self) -> np.ndarray:
+        """(Z, 2, 2) conductivity tensor of each zone, m/s."""
+        return np.array([conductivity_tensor(self.spec.materials[z.material]) for z in self.spec.zones])
+
+    def zone_material(self, zone_index: int) -> MaterialSpec:
+        return self.spec.materials[self.spec.zones[zone_index].material]
+
+    @property
+    def gamma_w(self) -> float:
+        """Unit weight of water, kN/m3."""
+        return self.spec.water.unit_weight
+
+    def __repr__(self) -> str:
+        s = self.spec
+        return (f"Section({s.title!r}: {len(s.materials)} materials, {len(s.zones)} zones, "
+                f"{len(s.boundaries)} boundaries, extent {self.extent:.4g} m)")
+
+
+def _unknown(kind: str, name: str, known: list[str]) -> str:
+    near = difflib.get_close_matches(name, known, n=1)
+    hint = f" (did you mean '{near[0]}'?)" if near else f" (known: {', '.join(known) or 'none'})"
+    return f"no {kind} named '{name}'{hint}"
+
+
+def _read(path_or_dict) -> tuple[dict, str]:
+    if isinstance(path_or_dict, dict):
+        return path_or_dict, "<dict>"
+    if isinstance(path_or_dict, (str, os.PathLike)):
+        p = Path(path_or_dict)
+        label = str(p)
+        try:
+            raw = p.read_bytes()
+        except OSError as e:
+            raise SectionError(f"{label}: cannot read the file ({e.strerror or e})") from None
+        try:
+            text = raw.decode("utf-8-sig")
+        except UnicodeDecodeError as e:
+            line = raw[:e.start].count(b"\n") + 1
+            raise SectionError(f"{label}: not UTF-8 text (byte {e.start}, line {line})") from None
+        try:
+            data = json.loads(text, parse_constant=_reject_constant)
+        except json.JSONDecodeError as e:
+            raise SectionError(f"{label}: not valid JSON at line {e.lineno}, column {e.colno}: {e.msg}") from None
+        except ValueError as e:
+            raise SectionError(f"{label}: {e}") from None
+        if not isinstance(data, dict):
+            raise SectionError(f"{label}: the top level must be a JSON object {{...}}, got {type(data).__name__}")
+        return data, label
+    raise SectionError(f"load_section takes a path or a dict, got {type(path_or_dict).__name__}")
+
+
+def _reject_constant(name: str):
+    raise ValueError(f"'{name}' is not a number JSON allows; write a finite number")
+
+
+def _label(data: Any, loc: tuple) -> str:
+    """Human path of a pydantic error location: ``zone 'core'.polygon[2]``."""
+    parts: list[str] = []
+    node = data
+    for i, key in enumerate(loc):
+        coll = loc[i - 1] if i else None
+        if isinstance(key, int) and coll in ("zones", "boundaries") and isinstance(node, list) \
+                and key < len(node) and isinstance(node[key], dict) and isinstance(node[key].get("name"), str):
+            kind = "zone" if coll == "zones" else "boundary"
+            if parts and parts[-1] == coll:
+                parts.pop()
+            parts.append(f"{kind} '{node[key]['name']}'")
+        elif coll == "materials" and parts and parts[-1] == "materials":
+            parts[-1] = f"material '{key}'"
+        elif isinstance(key, int):
+            parts[-1:] = [f"{parts[-1] if parts else ''}[{key}]"]
+        else:
+            parts.append(str(key))
+        try:
+            node = node[key]
+        except (KeyError, IndexError, TypeError):
+            node = None
+    return ".".join(parts)
+
+
+def _allowed_keys(model: type[BaseModel], data: Any, loc: tuple) -> list[str]:
+    """Keys the model allows at loc (for 'did you mean')."""
+    cur: Any = model
+    for key in loc[:-1]:
+        if isinstance(cur, type) and issubclass(cur, BaseModel):
+            f = cur.model_fields.get(key) if isinstance(key, str) else None
+            if f is None:
+                return []
+            cur = _inner(f.annotation)
+        else:
+            cur = _inner(cur)
+    if isinstance(cur, type) and issubclass(cur, BaseModel):
+        return list(cur.model_fields)
+    return []
+
+
+def _inner(ann):
+    """Strip list[...], dict[str, ...], Optional[...], Annotated[...] down to a model class."""
+    import typing
+    for _ in range(6):
+        if isinstance(ann, type) and issubclass(ann, BaseModel):
+            return ann
+        args = [a for a in typing.get_args(ann) if a is not type(None)]
+        if not args:
+            return ann
+        models = [a for a in args if isinstance(a, type) and issubclass(a, BaseModel)]
+        ann = models[0] if models else args[-1]
+    return ann
+
+
+def _format_pydantic(e: ValidationError, data: dict, label: str) -> str:
+    errs = e.errors(include_url=False)
+    # an error inside a union/list element can repeat; show the first, count the rest
+    err = errs[0]
+    loc = tuple(x for x in err["loc"] if not (isinstance(x, str) and x.startswith(("function-", "constrained-"))))
+    where = _label(data, loc)
+    t = err["type"]
+    if t == "extra_forbidden":
+        key = str(loc[-1])
+        where = _label(data, loc[:-1])
+        allowed = _allowed_keys(SectionSpec, data, loc)
+        near = difflib.get_close_matches(key, allowed, n=1, cutoff=0.5)
+        hint = f" (did you mean '{near[0]}'?)" if near else (f" (allowed: {', '.join(allowed)})" if allowed else "")
+        msg = f"unknown key '{key}'{hint}"
+    elif t == "missing":
+        where = _label(data, loc[:-1])
+        msg = f"missing key '{loc[-1]}'"
+    elif t == "value_error":
+        msg = str(err["msg"]).removeprefix("Value error, ")
+    elif t in ("float_type", "int_type", "string_type", "bool_type", "list_type", "dict_type", "model_type",
+               "float_parsing", "int_from_float", "literal_error", "model_attributes_type"):
+        got = err.get("input")
+        shown = json.dumps(got) if isinstance(got, (int, float, str, bool, type(None))) else type(got).__name__
+        want = {"float_type": "a number", "int_type": "a whole number", "string_type": "a string",
+                "bool_type": "true or false", "list_type": "a list", "dict_type": "an object {...}",
+                "model_type": "an object {...}", "model_attributes_type": "an object {...}",
+                "int_from_float": "a whole number", "float_parsing": "a number"}.get(t)
+        msg = (f"expected {want}, got {shown}" if want else str(err["msg"]).lower() + f", got {shown}")
+    else:
+        got = err.get("input")
+        tail = f", got {json.dumps(got)}" if isinstance(got, (int, float, str, bool)) else ""
+        msg = str(err["msg"]).lower() + tail
+    more = f" (and {len(errs) - 1} more)" if len(errs) > 1 else ""
+    return f"{label}: {where + ': ' if where else ''}{msg}{more}"
+
+
+def _hash(data: dict) -> str:
+    canon = json.dumps(data, sort_keys=True, separators=(",", ":"), allow_nan=False, default=str)
+    return hashlib.sha256(canon.encode()).hexdigest()
+
+
+def load_section(path_or_dict) -> Section:
+    """Read and validate a section from a JSON file path or an equivalent dict.
+
+    Parameters
+    ----------
+    path_or_dict : str, os.PathLike or dict
+        A section file (UTF-8 JSON) or the same content as a dict.
+
+    Returns
+    -------
+    Section
+
+    Raises
+    ------
+    SectionError
+        On any fault, with one line naming the file, the item and what is wrong.
+    """
+    data, label = _read(path_or_dict)
+    try:
+        spec = SectionSpec.model_validate(data)
+    except ValidationError as e:
+        raise SectionError(_format_pydantic(e, data, label)) from None
+    try:
+        return _build(spec, data, label)
+    except SectionError as e:
+        raise SectionError(f"{label}: {e}") from None
+
+
+def _build(spec: SectionSpec, data: dict, label: str) -> Section:
+    # names
+    names = [z.name for z in spec.zones]
+    for n in names:
+        if names.count(n) > 1:
+            raise SectionError(f"zone '{n}' is defined {names.count(n)} times; zone names must be unique")
+    bnames = [b.name for b in spec.boundaries]
+    for n in bnames:
+        if bnames.count(n) > 1:
+            raise SectionError(f"boundary '{n}' is defined {bnames.count(n)} times; boundary names must be unique")
+    for z in spec.zones:
+        if z.material not in spec.materials:
+            raise SectionError(f"zone '{z.name}': " + _unknown("material", z.material, list(spec.materials)))
+    if not any(b.kind == "head" for b in spec.boundaries):
+        raise SectionError("no boundary prescribes a 'head': the head field would have no unique solution; "
+                           "add at least one boundary with \"head\": <m>")
+
+    allpts = np.array([p for z in spec.zones for p in z.polygon], dtype=float)
+    extent = float(np.ptp(allpts, axis=0).max()) if len(allpts) > 1 else 0.0
+    if not extent > 0:
+        raise SectionError("the zones have no extent")
+    tol = 1e-7 * extent
+    polys = [geometry.clean_polygon(f"zone '{z.name}'", z.polygon, tol) for z in spec.zones]
+    outline = geometry.check_tiling(names, polys, extent)
+    blines = []
+    for b in spec.boundaries:
+        bl = np.asarray(b.polyline, dtype=float)
+        keep = np.ones(len(bl), bool)
+        keep[1:] = np.linalg.norm(np.diff(bl, axis=0), axis=1) > tol
+        bl = bl[keep]
+        if len(bl) < 2:
+            raise SectionError(f"boundary '{b.name}': polyline has zero length")
+        blines.append(bl)
+    graph = geometry.build_graph(names, polys, outline, bnames, blines, tol)
+    return Section(spec=spec, source=label, data=data, input_hash=_hash(data), polygons=tuple(polys),
+                   outline=outline, extent=extent, tol=tol, graph=graph)
