@@ -1,0 +1,37 @@
+"""``seepfe solve SECTION --out DIR``: solve and write summary.json, CSV tables and a VTU file."""
+
+from __future__ import annotations
+
+from ..result import CAUTION
+from .common import table
+
+
+def register(sub) -> None:
+    s = sub.add_parser("solve", help="solve a section and write results to a folder")
+    s.add_argument("section", help="section file (JSON)")
+    s.add_argument("--out", required=True, help="output folder (replaced whole on success)")
+    s.add_argument("--order", type=int, choices=(1, 2), default=None, help="element order (default: file, 2)")
+    s.add_argument("--linear", choices=("auto", "direct", "amg"), default=None, help="linear solver")
+    s.set_defaults(func=run)
+
+
+def run(args) -> int:
+    from ..output import atomic_dir, write_result
+    from ..solver import solve
+    res = solve(args.section, order=args.order, linear=args.linear)
+    summary = res.summary()
+    with atomic_dir(args.out) as tmp:
+        write_result(res, tmp, summary)
+    print(table(f"{res.section.title or res.section.source}: flows (m3/s per m, + into the section)",
+                ["boundary", "kind", "flow (m3/s per m)"],
+                [[b.name, b.kind, f"{res.boundary_flow(b.name):+.4e}"] for b in res.section.spec.boundaries]))
+    bal = summary["balance"]
+    sv = summary["solver"]
+    print(f"balance: in {bal['inflow_m3_s_per_m']:.4e}, out {bal['outflow_m3_s_per_m']:.4e} m3/s per m, "
+          f"relative error {bal['relative_error']:.1e}")
+    print(f"mesh: {summary['mesh']['elements']} P{summary['mesh']['order']} triangles, "
+          f"{summary['mesh']['nodes']} nodes; solver: {sv['backend']}, {sv['unknowns']} unknowns, "
+          f"{sv['seepage_face_passes']} pass(es)")
+    print(f"written: {args.out}/ (summary.json, nodes.csv, elements.csv, result.vtu)")
+    print(f"CAUTION: {CAUTION}")
+    return 0 if sv.get("converged", True) else 3
