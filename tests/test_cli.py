@@ -1,0 +1,46 @@
+"""The CLI in-process: check and solve write what they promise, and never a half-written folder."""
+
+import json
+from pathlib import Path
+
+import meshio
+import numpy as np
+
+from seepfe.cli import main
+
+DEMO = Path(__file__).parent.parent / "sections" / "levee_blanket.json"
+
+
+def test_check_prints_mesh_statistics(capsys):
+    assert main(["check", str(DEMO), "--order", "1"]) == 0
+    out = capsys.readouterr().out
+    assert "valid" in out and "min angle (deg)" in out and "worst quality" in out
+
+
+def test_solve_writes_summary_tables_and_vtu(tmp_path, capsys):
+    out = tmp_path / "levee"
+    assert main(["solve", str(DEMO), "--out", str(out), "--order", "1"]) == 0
+    text = capsys.readouterr().out
+    assert "licensed engineer" in text
+    s = json.loads((out / "summary.json").read_text())
+    assert set(s["flows_m3_s_per_m"]) == {"river", "landside"}
+    assert s["balance"]["relative_error"] < 1e-8
+    assert len(s["input_sha256"]) == 64 and s["seepfe_version"]
+    nodes = np.genfromtxt(out / "nodes.csv", delimiter=",", names=True)
+    assert {"x_m", "y_m", "total_head_m", "pressure_head_m", "pore_pressure_kPa"} <= set(nodes.dtype.names)
+    assert len(nodes) == s["mesh"]["nodes"]
+    m = meshio.read(out / "result.vtu")
+    assert np.allclose(m.point_data["total_head_m"], nodes["total_head_m"])
+    # a second run replaces the folder whole; no temporary folders are left beside it
+    assert main(["solve", str(DEMO), "--out", str(out), "--order", "1"]) == 0
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["levee"]
+
+
+def test_solve_refuses_a_foreign_folder(tmp_path, capsys):
+    foreign = tmp_path / "mine"
+    foreign.mkdir()
+    (foreign / "notes.txt").write_text("keep me")
+    assert main(["solve", str(DEMO), "--out", str(foreign), "--order", "1"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and err[0].startswith("seepfe: error:")
+    assert (foreign / "notes.txt").read_text() == "keep me"
