@@ -84,8 +84,11 @@ def check_tiling(names: list[str], polys: list[np.ndarray], extent: float) -> Po
         parts = sorted(union.geoms, key=lambda g: g.area)
         small = parts[0]
         who = [names[i] for i, s in enumerate(shp) if s.representative_point().within(small)]
-        raise SectionError(f"zone '{who[0] if who else '?'}' is a disconnected piece: it does not share an "
-                           f"edge with the rest of the section (near {fmt_xy(small.representative_point().coords[0])})")
+        what = (f"zone '{who[0]}' is" if len(who) == 1 else
+                "zones " + ", ".join(f"'{w}'" for w in who[:4]) + (" ..." if len(who) > 4 else "") + " are")
+        raise SectionError(f"{what} a disconnected piece: not joined along an edge to the rest of the section "
+                           f"(near {fmt_xy(small.representative_point().coords[0])}); zones must tile one "
+                           f"connected section")
     for ring in union.interiors:
         hole = Polygon(ring)
         if hole.area > area_tol:
@@ -154,6 +157,7 @@ def build_graph(zone_names: list[str], polys: list[np.ndarray], outline: Polygon
         off = line.difference(band)
         if off.length > tol * 10:
             c = off.geoms[0].coords[0] if hasattr(off, "geoms") else off.coords[0]
+            c = np.round(np.asarray(c), max(0, -int(np.floor(np.log10(tol * 100))))) + 0.0  # drop band noise
             raise SectionError(f"boundary '{name}': polyline leaves the outline of the section near "
                                f"{fmt_xy(c)}")
 

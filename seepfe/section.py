@@ -12,6 +12,9 @@ import hashlib
 import json
 import math
 import os
+import re
+import types
+import typing
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -115,13 +118,17 @@ def _read(path_or_dict) -> tuple[dict, str]:
             text = raw.decode("utf-8-sig")
         except UnicodeDecodeError as e:
             line = raw[:e.start].count(b"\n") + 1
-            raise SectionError(f"{label}: not UTF-8 text (byte {e.start}, line {line})") from None
+            col = e.start - (raw.rfind(b"\n", 0, e.start) + 1) + 1
+            raise SectionError(f"{label}: not UTF-8 text at line {line}, column {col} (byte 0x{raw[e.start]:02x}); "
+                               "save the file as UTF-8") from None
         try:
             data = json.loads(text, parse_constant=_reject_constant)
         except json.JSONDecodeError as e:
             raise SectionError(f"{label}: not valid JSON at line {e.lineno}, column {e.colno}: {e.msg}") from None
         except ValueError as e:
-            raise SectionError(f"{label}: {e}") from None
+            raise SectionError(f"{label}: {_constant_where(text)}{e}") from None
+        except RecursionError:
+            raise SectionError(f"{label}: not valid JSON: nested too deeply") from None
         if not isinstance(data, dict):
             raise SectionError(f"{label}: the top level must be a JSON object {{...}}, got {type(data).__name__}")
         return data, label
@@ -130,6 +137,17 @@ def _read(path_or_dict) -> tuple[dict, str]:
 
 def _reject_constant(name: str):
     raise ValueError(f"'{name}' is not a number JSON allows; write a finite number")
+
+
+def _constant_where(text: str) -> str:
+    """'line L, column C: ' of the first NaN/Infinity literal outside strings (or '')."""
+    blank = re.sub(r'"(?:\\.|[^"\\])*"', lambda m: " " * len(m.group()), text)
+    m = re.search(r"-?\b(?:NaN|Infinity)\b", blank)
+    if not m:
+        return ""
+    line = text.count("\n", 0, m.start()) + 1
+    col = m.start() - (text.rfind("\n", 0, m.start()) + 1) + 1
+    return f"line {line}, column {col}: "
 
 
 def _label(data: Any, loc: tuple) -> str:
@@ -158,32 +176,37 @@ def _label(data: Any, loc: tuple) -> str:
 
 
 def _allowed_keys(model: type[BaseModel], data: Any, loc: tuple) -> list[str]:
-    """Keys the model allows at loc (for 'did you mean')."""
-    cur: Any = model
+    """Keys the model allows at loc (for 'did you mean'); walks models, lists and dicts."""
+    ann: Any = model
     for key in loc[:-1]:
-        if isinstance(cur, type) and issubclass(cur, BaseModel):
-            f = cur.model_fields.get(key) if isinstance(key, str) else None
+        ann = _strip(ann)
+        if isinstance(ann, type) and issubclass(ann, BaseModel):
+            f = ann.model_fields.get(key) if isinstance(key, str) else None
             if f is None:
                 return []
-            cur = _inner(f.annotation)
+            ann = f.annotation
+        elif typing.get_origin(ann) in (list, dict, tuple):
+            ann = typing.get_args(ann)[-1]
         else:
-            cur = _inner(cur)
-    if isinstance(cur, type) and issubclass(cur, BaseModel):
-        return list(cur.model_fields)
+            return []
+    ann = _strip(ann)
+    if isinstance(ann, type) and issubclass(ann, BaseModel):
+        return list(ann.model_fields)
     return []
 
 
-def _inner(ann):
-    """Strip list[...], dict[str, ...], Optional[...], Annotated[...] down to a model class."""
-    import typing
-    for _ in range(6):
-        if isinstance(ann, type) and issubclass(ann, BaseModel):
+def _strip(ann):
+    """Strip Annotated[...] and Optional[...] (not list/dict)."""
+    for _ in range(8):
+        if typing.get_origin(ann) is typing.Annotated:
+            ann = typing.get_args(ann)[0]
+        elif typing.get_origin(ann) in (typing.Union, types.UnionType):
+            args = [a for a in typing.get_args(ann) if a is not type(None)]
+            ann = args[0] if len(args) == 1 else ann
+            if len(args) != 1:
+                return ann
+        else:
             return ann
-        args = [a for a in typing.get_args(ann) if a is not type(None)]
-        if not args:
-            return ann
-        models = [a for a in args if isinstance(a, type) and issubclass(a, BaseModel)]
-        ann = models[0] if models else args[-1]
     return ann
 
 
@@ -204,6 +227,19 @@ def _format_pydantic(e: ValidationError, data: dict, label: str) -> str:
     elif t == "missing":
         where = _label(data, loc[:-1])
         msg = f"missing key '{loc[-1]}'"
+    elif t in ("too_long", "too_short"):
+        got = err.get("input")
+        ctx = err.get("ctx", {})
+        n = len(got) if isinstance(got, (list, dict)) else ctx.get("actual_length")
+        is_point = (len(loc) >= 2 and isinstance(loc[-1], int) and loc[-2] in ("polygon", "polyline")) \
+            or (bool(loc) and loc[-1] == "point")
+        noun = "points" if loc and loc[-1] in ("polygon", "polyline") else "item(s)"
+        if is_point:
+            msg = f"a point is [x, y] (two numbers, m), got {json.dumps(got) if n is not None and n < 8 else f'{n} items'}"
+        elif t == "too_short":
+            msg = f"needs at least {ctx.get('min_length')} {noun}, got {n}"
+        else:
+            msg = f"allows at most {ctx.get('max_length')} {noun}, got {n}"
     elif t == "value_error":
         msg = str(err["msg"]).removeprefix("Value error, ")
     elif t in ("float_type", "int_type", "string_type", "bool_type", "list_type", "dict_type", "model_type",
