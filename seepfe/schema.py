@@ -32,7 +32,7 @@ def _positive(v: float) -> float:
 
 
 Finite = Annotated[float, AfterValidator(_finite)]
-Positive = Annotated[float, AfterValidator(_positive)]
+Positive = Annotated[float, AfterValidator(_positive), Field(json_schema_extra={"exclusiveMinimum": 0})]
 Point = Annotated[list[Finite], Field(min_length=2, max_length=2)]
 
 _CFG = ConfigDict(extra="forbid", strict=True, frozen=True)
@@ -86,6 +86,8 @@ class ZoneSpec(BaseModel):
     name: Annotated[str, Field(min_length=1)]
     material: str
     polygon: list[Point] = Field(description="vertices [[x, y], ...] in m, either orientation")
+    drain: bool = Field(False, description="a drain zone (toe, blanket or chimney drain) at atmospheric "
+                                           "pressure: takes water out, never puts it in")
 
 
 class BoundarySpec(BaseModel):
@@ -165,6 +167,12 @@ class SolverSpec(BaseModel):
     tolerance: Positive = Field(1e-10, description="relative residual for the iterative solver")
     max_iterations: Annotated[int, Field(gt=0)] = Field(
         60, description="cap on seepage-face / nonlinear iterations")
+    phreatic: Literal["auto", "off"] = Field(
+        "auto", description="auto: find the phreatic surface when part of the section lies above it "
+                            "(saturated-unsaturated solve); off: treat the whole section as saturated")
+    nonlinear: Literal["newton", "picard"] = Field(
+        "newton", description="iteration of the unconfined solve: newton (line search) or picard "
+                              "(under-relaxed)")
 
 
 class SectionSpec(BaseModel):
