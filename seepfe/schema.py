@@ -175,6 +175,51 @@ class SolverSpec(BaseModel):
                               "(under-relaxed)")
 
 
+class CriteriaSpec(BaseModel):
+    """Pass/fail criteria of the underseepage checks (:mod:`seepfe.checks`).
+
+    Defaults after USACE ETL 1110-2-569 (2005), Design guidance for levee underseepage, which
+    amends EM 1110-2-1913 (2000), Design and Construction of Levees: factor of safety 1.6 against
+    heave/uplift at the landside toe and an allowable average gradient of about 0.5 across the
+    top stratum (values recalled from memory; check them against the current edition and local
+    agency criteria).
+    """
+
+    model_config = _CFG
+    fs_heave: Positive = Field(1.6, description="least factor of safety against heave, i_c / i (-) "
+                                                "(ETL 1110-2-569, from memory)")
+    fs_uplift: Positive = Field(1.6, description="least factor of safety against uplift of the top stratum (-) "
+                                                 "(ETL 1110-2-569, from memory)")
+    allowable_gradient: Positive = Field(0.5, description="largest upward gradient across the top stratum, "
+                                                          "or at the surface where there is none (m/m) "
+                                                          "(USACE practice, from memory)")
+
+
+class ChecksSpec(BaseModel):
+    """Underseepage checks along exit surfaces. Every key is optional."""
+
+    model_config = _CFG
+    boundaries: Optional[list[Annotated[str, Field(min_length=1)]]] = Field(
+        None, description="names of the boundaries to check (default: every seepage face, and head "
+                          "boundaries at the lowest prescribed head)")
+    spacing: Optional[Positive] = Field(None, description="extra check points every this many m along "
+                                                          "each boundary (besides every mesh node)")
+    top_stratum_depth: Optional[Positive] = Field(
+        None, description="depth of the base of the top stratum below the surface, m (default: found "
+                          "by walking down the zones)")
+    contrast: Annotated[float, AfterValidator(_finite), Field(gt=1.0)] = Field(
+        10.0, description="a layer is 'markedly less pervious' than the one below when their vertical "
+                          "conductivities differ by at least this ratio (-)")
+    toe_x: Optional[Finite] = Field(None, description="x of the landside toe, m (default: inferred)")
+    riverside_toe_x: Optional[Finite] = Field(None, description="x of the riverside toe, m (default: inferred)")
+    landside_water_level: Optional[Finite] = Field(
+        None, description="landside water level (total head), m (default: the ground surface)")
+    cutoff: Optional[Annotated[list[Point], Field(min_length=2, max_length=2)]] = Field(
+        None, description="a cutoff or sheet pile as [[x, y_top], [x, y_tip]], m, when it is not a "
+                          "zone or barrier of the section")
+    criteria: CriteriaSpec = Field(default_factory=CriteriaSpec)
+
+
 class SectionSpec(BaseModel):
     """A whole section file."""
 
@@ -187,3 +232,4 @@ class SectionSpec(BaseModel):
     mesh: MeshSpec = Field(default_factory=MeshSpec)
     water: WaterSpec = Field(default_factory=WaterSpec)
     solver: SolverSpec = Field(default_factory=SolverSpec)
+    checks: ChecksSpec = Field(default_factory=ChecksSpec)
