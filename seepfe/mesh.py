@@ -284,8 +284,11 @@ def make_mesh(section: Section, order: int | None = None, size: float | None = N
     ms = section.spec.mesh
     order = order or ms.order
     S = size or default_size(section)
-    est = estimate_triangles(section, S)
-    if est > ms.max_elements:
+    try:
+        est = estimate_triangles(section, S)
+    except (ZeroDivisionError, OverflowError):     # sizes so small that their squares underflow
+        est = math.inf
+    if not est <= ms.max_elements:
         raise SectionError(f"{section.source}: mesh: size {S:.4g} m (with its refinements) would make "
                            f"about {est:.3g} triangles, more than max_elements = {ms.max_elements}; "
                            f"use a larger 'mesh.size' or raise 'mesh.max_elements'")

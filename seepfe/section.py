@@ -292,6 +292,24 @@ def load_section(path_or_dict) -> Section:
         raise SectionError(f"{label}: {e}") from None
 
 
+#: largest coordinate accepted, m (squares of coordinates must stay far from overflow)
+MAX_COORDINATE = 1e9
+
+
+def _check_coordinates(spec: SectionSpec) -> None:
+    """Refuse coordinates so large that distances overflow (a unit slip, or a corrupted file)."""
+    items = [(f"zone '{z.name}'", z.polygon) for z in spec.zones]
+    items += [(f"boundary '{b.name}'", b.polyline) for b in spec.boundaries]
+    items += [(f"barrier '{r.name}'", r.polyline) for r in getattr(spec, "barriers", None) or ()]
+    items += [(f"mesh.refine[{i}]", r.polyline if r.polyline is not None else [r.point])
+              for i, r in enumerate(spec.mesh.refine)]
+    for what, pts in items:
+        for x, y in pts:
+            if max(abs(x), abs(y)) > MAX_COORDINATE:
+                raise SectionError(f"{what}: point [{x:.6g}, {y:.6g}] is out of range: coordinates are m and "
+                                   f"must lie within +-{MAX_COORDINATE:.0e} m")
+
+
 def _build(spec: SectionSpec, data: dict, label: str) -> Section:
     # names
     names = [z.name for z in spec.zones]
@@ -309,6 +327,7 @@ def _build(spec: SectionSpec, data: dict, label: str) -> Section:
         raise SectionError("no boundary prescribes a 'head': the head field would have no unique solution; "
                            "add at least one boundary with \"head\": <m>")
 
+    _check_coordinates(spec)
     allpts = np.array([p for z in spec.zones for p in z.polygon], dtype=float)
     extent = float(np.ptp(allpts, axis=0).max()) if len(allpts) > 1 else 0.0
     if not extent > 0:
