@@ -156,9 +156,9 @@ def _label(data: Any, loc: tuple) -> str:
     node = data
     for i, key in enumerate(loc):
         coll = loc[i - 1] if i else None
-        if isinstance(key, int) and coll in ("zones", "boundaries") and isinstance(node, list) \
+        if isinstance(key, int) and coll in ("zones", "boundaries", "barriers") and isinstance(node, list) \
                 and key < len(node) and isinstance(node[key], dict) and isinstance(node[key].get("name"), str):
-            kind = "zone" if coll == "zones" else "boundary"
+            kind = {"zones": "zone", "boundaries": "boundary", "barriers": "barrier"}[coll]
             if parts and parts[-1] == coll:
                 parts.pop()
             parts.append(f"{kind} '{node[key]['name']}'")
@@ -282,10 +282,20 @@ def load_section(path_or_dict) -> Section:
         On any fault, with one line naming the file, the item and what is wrong.
     """
     data, label = _read(path_or_dict)
+    # parameters and '=' expressions first, then remedial measures; the original dict keeps the hash
+    from . import params, remedies
+    work = params.resolve(data, label)
+    measures = work.pop("remedies", None)
     try:
-        spec = SectionSpec.model_validate(data)
+        spec = SectionSpec.model_validate(work)
     except ValidationError as e:
-        raise SectionError(_format_pydantic(e, data, label)) from None
+        raise SectionError(_format_pydantic(e, work, label)) from None
+    if measures is not None:
+        work = remedies.apply(spec, work, measures, label)
+        try:
+            spec = SectionSpec.model_validate(work)
+        except ValidationError as e:
+            raise SectionError(_format_pydantic(e, work, label) + " (after applying the remedies)") from None
     try:
         return _build(spec, data, label)
     except SectionError as e:
@@ -344,6 +354,12 @@ def _build(spec: SectionSpec, data: dict, label: str) -> Section:
         if len(bl) < 2:
             raise SectionError(f"boundary '{b.name}': polyline has zero length")
         blines.append(bl)
-    graph = geometry.build_graph(names, polys, outline, bnames, blines, tol)
+    rnames = [r.name for r in spec.barriers]
+    for n in rnames:
+        if rnames.count(n) > 1:
+            raise SectionError(f"barrier '{n}' is defined {rnames.count(n)} times; barrier names must be unique")
+    rlines = geometry.check_barriers(rnames, [r.polyline for r in spec.barriers], outline, tol)
+    graph = geometry.build_graph(names, polys, outline, bnames, blines, tol,
+                                 barriers=tuple(zip(rnames, rlines)))
     return Section(spec=spec, source=label, data=data, input_hash=_hash(data), polygons=tuple(polys),
                    outline=outline, extent=extent, tol=tol, graph=graph)
