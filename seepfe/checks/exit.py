@@ -1,0 +1,335 @@
+"""Exit gradients, heave and uplift factors of safety along a named exit surface.
+
+Along the boundary, at every mesh node on it and at an optional spacing, :func:`exit_gradients`
+reports (units in brackets; upward and outward positive):
+
+* ``gradient`` [m/m]: vertical exit gradient at the surface, -dh/dy, from nodal gradients recovered
+  by superconvergent patch recovery (:mod:`seepfe.checks.recovery`) in the zone under the point and
+  interpolated along each boundary edge with the edge's own shape functions;
+* ``normal_gradient`` [m/m]: -dh/dn along the outward normal (for exits on slopes);
+* ``blanket_gradient`` [m/m]: (head at the base of the top stratum - head at the surface) / thickness;
+* ``i_critical`` [m/m]: (gamma_sat - gamma_w) / gamma_w of the soil at the surface, or (Gs - 1)/(1 + e);
+* ``fs_heave`` = i_critical / i, i being the gradient across the top stratum where there is one
+  (USACE practice) and the surface gradient elsewhere; ``fs_uplift`` = sum((gamma_sat - gamma_w) t) / (gamma_w h_excess),
+  h_excess being the head at the base of the top stratum above the landside water level (or the
+  ground surface); ``fs`` = the smaller of the two (inf where the flow is not upward);
+* ``passes`` against the section's ``checks.criteria``.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import shapely
+from shapely.geometry import LineString
+
+from ..errors import SectionError
+from . import recovery, strata
+
+__all__ = ["ExitChecks", "exit_gradients", "default_boundaries", "infer_toe"]
+
+
+@dataclass(eq=False)
+class ExitChecks:
+    """Checks along one exit surface; arrays are per check point, ordered along the boundary."""
+
+    boundary: str
+    x: np.ndarray                    # m
+    y: np.ndarray                    # m
+    s: np.ndarray                    # distance along the boundary, m
+    distance_from_toe: np.ndarray    # m, positive away from the levee
+    is_node: np.ndarray              # 1 at a mesh node, 0 at a spacing point
+    zone: np.ndarray                 # zone index at the surface
+    head: np.ndarray                 # total head at the surface, m
+    gradient: np.ndarray             # vertical exit gradient at the surface, upward positive, m/m
+    normal_gradient: np.ndarray      # gradient along the outward normal, outward positive, m/m
+    blanket_gradient: np.ndarray     # average vertical gradient across the top stratum, m/m (nan: none)
+    thickness: np.ndarray            # top-stratum thickness, m (nan: none)
+    head_base: np.ndarray            # total head at the base of the top stratum, m
+    h_excess: np.ndarray             # head at the base above the landside water / ground, m
+    i_critical: np.ndarray           # m/m
+    fs_heave: np.ndarray             # -
+    fs_uplift: np.ndarray            # -
+    fs: np.ndarray                   # governing (smaller) factor of safety, -
+    passes: np.ndarray               # bool
+    criteria: dict
+    toe_x: float
+    toe_source: str
+    method: str = recovery.METHOD
+    top_stratum_method: str = ""
+    notes: list = field(default_factory=list)
+
+    # ------------------------------------------------------------------ governing values
+    @property
+    def governing_gradient(self) -> np.ndarray:
+        """Gradient the allowable gradient applies to: across the top stratum where one exists, else at the surface."""
+        return np.where(np.isfinite(self.blanket_gradient), self.blanket_gradient, self.gradient)
+
+    @property
+    def governing(self) -> dict:
+        """Location and value of the least factor of safety and the largest gradient, and how far from the toe the criteria fail."""
+        out = {"boundary": self.boundary}
+        fs = np.where(np.isfinite(self.fs), self.fs, np.inf)
+        if len(fs) and np.isfinite(fs).any():
+            i = int(np.argmin(fs))
+            out["min_fs"] = {"value": float(fs[i]), "x_m": float(self.x[i]), "y_m": float(self.y[i]),
+                             "distance_from_toe_m": float(self.distance_from_toe[i]),
+                             "kind": "heave" if self.fs_heave[i] <= self.fs_uplift[i] or not np.isfinite(self.fs_uplift[i]) else "uplift"}
+        else:
+            out["min_fs"] = None
+        for key, arr in (("max_gradient", self.gradient), ("max_blanket_gradient", self.blanket_gradient)):
+            a = np.where(np.isfinite(arr), arr, -np.inf)
+            if len(a) and np.isfinite(a).any():
+                i = int(np.argmax(a))
+                out[key] = {"value_m_per_m": float(a[i]), "x_m": float(self.x[i]), "y_m": float(self.y[i]),
+                            "distance_from_toe_m": float(self.distance_from_toe[i])}
+            else:
+                out[key] = None
+        fail = ~self.passes
+        out["points"] = int(len(self.x))
+        out["failing_points"] = int(fail.sum())
+        out["fails_within_m_of_toe"] = float(self.distance_from_toe[fail].max()) if fail.any() else 0.0
+        out["passes"] = bool(not fail.any())
+        return out
+
+    # ------------------------------------------------------------------ output
+    def columns(self) -> dict:
+        """Named columns with units, for CSV."""
+        return {"x_m": self.x, "y_m": self.y, "s_m": self.s, "distance_from_toe_m": self.distance_from_toe,
+                "is_node": self.is_node, "zone": self.zone, "head_m": self.head,
+                "gradient_vertical": self.gradient, "gradient_normal": self.normal_gradient,
+                "gradient_top_stratum": self.blanket_gradient, "top_stratum_thickness_m": self.thickness,
+                "head_base_m": self.head_base, "h_excess_m": self.h_excess, "i_critical": self.i_critical,
+                "fs_heave": self.fs_heave, "fs_uplift": self.fs_uplift, "fs": self.fs,
+                "passes": self.passes.astype(float)}
+
+    def to_csv(self, path) -> None:
+        """Write one row per check point; the header names carry units (gradients m/m, FS -)."""
+        from ..output import write_csv
+        from pathlib import Path
+        write_csv(Path(path), self.columns())
+
+    def to_dict(self) -> dict:
+        """Plain-data summary for summary.json (governing values, criteria, methods, notes)."""
+        return {"boundary": self.boundary, "gradient_method": self.method,
+                "top_stratum": self.top_stratum_method, "toe_x_m": self.toe_x, "toe_from": self.toe_source,
+                "criteria": self.criteria, "governing": _finite_or_none(self.governing), "notes": list(self.notes)}
+
+    def __len__(self) -> int:
+        return len(self.x)
+
+    def __repr__(self) -> str:
+        g = self.governing
+        m = g["min_fs"]
+        return (f"<ExitChecks '{self.boundary}': {len(self.x)} points, least FS "
+                f"{m['value'] if m else float('nan'):.3g}, {'passes' if g['passes'] else 'fails'}>")
+
+
+def _finite_or_none(d):
+    if isinstance(d, dict):
+        return {k: _finite_or_none(v) for k, v in d.items()}
+    if isinstance(d, float) and not math.isfinite(d):
+        return None
+    return d
+
+
+def default_boundaries(section) -> list[str]:
+    """Every seepage face, plus head boundaries at the lowest prescribed head when heads differ."""
+    bs = section.spec.boundaries
+    names = [b.name for b in bs if b.kind == "seepage_face"]
+    heads = [b.head for b in bs if b.kind == "head"]
+    if len(set(heads)) > 1:
+        lo = min(heads)
+        names += [b.name for b in bs if b.kind == "head" and b.head == lo]
+    return names
+
+
+def infer_toe(section, line: np.ndarray) -> tuple[float, str]:
+    """x of the landside toe: checks.toe_x, else the end of the boundary nearer the highest point of the outline."""
+    c = section.spec.checks
+    if c.toe_x is not None:
+        return float(c.toe_x), "checks.toe_x"
+    ring = np.asarray(section.outline.exterior.coords)
+    top = ring[ring[:, 1] >= ring[:, 1].max() - 10 * section.tol]
+    xc = float(top[:, 0].mean())
+    ends = line[[0, -1], 0]
+    i = int(np.argmin(np.abs(ends - xc)))
+    return float(ends[i]), "inferred: end of the boundary nearer the crest"
+
+
+def _edge_elements(mesh, edges):
+    """Element owning each outline edge, and the local index of its vertex opposite the edge."""
+    tri = mesh.triangles
+    n = mesh.n_vertices
+    loc = np.stack([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [2, 0]]], axis=1).reshape(-1, 2)
+    k = np.sort(loc, 1)
+    key = k[:, 0].astype(np.int64) * n + k[:, 1]
+    o = np.argsort(key)
+    be = np.sort(edges[:, :2], 1)
+    bk = be[:, 0].astype(np.int64) * n + be[:, 1]
+    pos = np.searchsorted(key[o], bk)
+    pos = np.clip(pos, 0, len(o) - 1)
+    if not np.all(key[o][pos] == bk):
+        raise ValueError("an outline edge has no element")
+    j = o[pos]
+    return j // 3, (j % 3 + 2) % 3
+
+
+def exit_gradients(result, name: str, spacing: float | None = None, depth: float | None = None) -> ExitChecks:
+    """Underseepage checks along the named boundary (see the module docstring for what is reported).
+
+    Parameters
+    ----------
+    result : Result
+    name : boundary name (any boundary on the outline: seepage face, ground surface, berm toe).
+    spacing : extra check points every this many m (default: section ``checks.spacing``; nodes only).
+    depth : depth of the top stratum base below the surface, m (default ``checks.top_stratum_depth``;
+        otherwise found from the zones).
+    """
+    sec, mesh = result.section, result.mesh
+    names = sec.boundary_names
+    if name not in names:
+        raise SectionError(f"{sec.source}: checks: {_unknown(name, names)}")
+    c = sec.spec.checks
+    spacing = spacing if spacing is not None else c.spacing
+    depth = depth if depth is not None else c.top_stratum_depth
+    bi = names.index(name)
+    on = mesh.edge_boundary == bi
+    edges = mesh.edges[on]
+    if not len(edges):
+        raise SectionError(f"{sec.source}: checks: boundary '{name}' claims no edge of the outline")
+    P = mesh.points
+    elem, opp = _edge_elements(mesh, edges)
+    ezone = mesh.zone[elem]
+    line = np.asarray(sec.boundary(name).polyline, float)
+    ls = LineString(line)
+    a, b = P[edges[:, 0]], P[edges[:, 1]]
+    sa = shapely.line_locate_point(ls, shapely.points(a))
+    sb = shapely.line_locate_point(ls, shapely.points(b))
+    flip = sb < sa
+    edges = edges.copy()
+    edges[flip, 0], edges[flip, 1] = edges[flip, 1], edges[flip, 0].copy()
+    sa, sb = np.minimum(sa, sb), np.maximum(sa, sb)
+    o = np.argsort(sa)
+    edges, elem, opp, ezone, sa, sb = edges[o], elem[o], opp[o], ezone[o], sa[o], sb[o]
+    a, b = P[edges[:, 0]], P[edges[:, 1]]
+    # outward normal: away from the vertex opposite the edge
+    t = b - a
+    L = np.linalg.norm(t, axis=1)
+    nrm = np.stack([t[:, 1], -t[:, 0]], 1) / L[:, None]
+    third = P[mesh.triangles[elem, opp]]
+    nrm[np.einsum("ij,ij->i", nrm, third - a) > 0] *= -1
+
+    # check points: each edge's start (and midpoint for P2), the last end, and spacing points
+    order = mesh.order
+    tpar = [np.zeros(len(edges))] + ([np.full(len(edges), 0.5)] if order == 2 else [])
+    eidx = [np.arange(len(edges))] * len(tpar)
+    tt = np.concatenate(tpar)
+    ee = np.concatenate(eidx)
+    node = np.ones(len(tt), bool)
+    tt = np.append(tt, 1.0)
+    ee = np.append(ee, len(edges) - 1)
+    node = np.append(node, True)
+    if spacing:
+        s_all = np.arange(sa[0], sb[-1] + 1e-12, spacing)
+        ke = np.clip(np.searchsorted(sb, s_all), 0, len(edges) - 1)
+        ts = np.clip((s_all - sa[ke]) / np.maximum(sb[ke] - sa[ke], 1e-300), 0, 1)
+        tt = np.concatenate([tt, ts])
+        ee = np.concatenate([ee, ke])
+        node = np.concatenate([node, np.zeros(len(ts), bool)])
+    s = sa[ee] + tt * (sb[ee] - sa[ee])
+    o = np.lexsort((~node, s))
+    tt, ee, node, s = tt[o], ee[o], node[o], s[o]
+    keep = np.ones(len(s), bool)
+    keep[1:] = np.abs(np.diff(s)) > 1e-9 * max(sec.extent, 1.0)
+    tt, ee, node, s = tt[keep], ee[keep], node[keep], s[keep]
+    xy = a[ee] + tt[:, None] * (b[ee] - a[ee])
+
+    # recovered gradients at the edge ends (per edge: zone of the edge's element)
+    qv = np.concatenate([edges[:, 0], edges[:, 1]])
+    qz = np.concatenate([ezone, ezone])
+    key = qv * (len(sec.polygons) + 1) + qz
+    ukey, inv = np.unique(key, return_inverse=True)
+    first = np.unique(inv, return_index=True)[1]
+    patches = recovery.recover(mesh, result.h, qv[first], qz[first])
+    gv = patches.at_vertex()
+    ga, gb = gv[inv[: len(edges)]], gv[inv[len(edges):]]
+    if order == 2:
+        mid = P[edges[:, 2]]
+        gm = 0.5 * (patches.evaluate(inv[: len(edges)], mid) + patches.evaluate(inv[len(edges):], mid))
+        w0 = 2 * (tt - 0.5) * (tt - 1)
+        w1 = 2 * tt * (tt - 0.5)
+        wm = 4 * tt * (1 - tt)
+        g = w0[:, None] * ga[ee] + w1[:, None] * gb[ee] + wm[:, None] * gm[ee]
+        hs = w0 * result.h[edges[ee, 0]] + w1 * result.h[edges[ee, 1]] + wm * result.h[edges[ee, 2]]
+    else:
+        g = (1 - tt)[:, None] * ga[ee] + tt[:, None] * gb[ee]
+        hs = (1 - tt) * result.h[edges[ee, 0]] + tt * result.h[edges[ee, 1]]
+    gradient = -g[:, 1]
+    normal_gradient = -np.einsum("ij,ij->i", g, nrm[ee])
+    zone = ezone[ee]
+
+    # top stratum
+    x, y = xy[:, 0], xy[:, 1]
+    cols = strata.columns(sec, x, y, contrast=c.contrast, depth=depth)
+    z = cols.thickness
+    has = np.isfinite(z) & (z > 0)
+    gw = sec.gamma_w
+    hb = np.full(len(x), np.nan)
+    if has.any():
+        nudge = 1e-6 * sec.extent
+        hb[has] = result.head(np.stack([x[has], cols.base[has] + nudge], 1))
+    blanket = np.where(has, (hb - hs) / np.where(has, z, 1.0), np.nan)
+    lw = c.landside_water_level
+    ref = np.maximum(y, lw) if lw is not None else y
+    h_excess = hb - ref
+    weight = strata.stratum_weight(sec, cols, len(x))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        fs_uplift = np.where(has, np.where(h_excess > 0, weight / (gw * h_excess), np.inf), np.nan)
+        ic_zone = np.array([strata.critical_gradient(sec.zone_material(k), gw) for k in range(len(sec.polygons))])
+        ic = ic_zone[zone]
+        # heave: the gradient across the top stratum where there is one (USACE practice, i = h0 / z),
+        # else the recovered gradient at the surface
+        igov = np.where(np.isfinite(blanket), blanket, gradient)
+        fs_heave = np.where(igov > 0, ic / igov, np.inf)
+        fs_heave = np.where(np.isfinite(ic), fs_heave, np.nan)
+    fs = np.fmin(fs_heave, fs_uplift)
+    cr = c.criteria
+    ok_h = ~(fs_heave < cr.fs_heave)
+    ok_u = ~(fs_uplift < cr.fs_uplift)
+    ok_i = ~(igov > cr.allowable_gradient)
+    passes = ok_h & ok_u & ok_i
+
+    toe_x, toe_src = infer_toe(sec, line)
+    direction = 1.0 if (line[:, 0].mean() - toe_x) >= 0 else -1.0
+    notes = []
+    nomat = sorted({sec.zone_names[k] for k in np.unique(zone) if not np.isfinite(ic_zone[k])})
+    if nomat:
+        notes.append(f"no unit_weight (or specific_gravity and void_ratio) in zone(s) {', '.join(nomat)}: "
+                     "no critical gradient, no heave factor of safety there")
+    if not has.any():
+        notes.append("no top stratum found under this boundary (no layer markedly less pervious than the one "
+                     f"below it, contrast {c.contrast:g}): no uplift check")
+    if np.isnan(weight[has]).any():
+        notes.append("a top-stratum layer has no unit weight: uplift factor of safety not computed there")
+    tsm = (f"to the depth given ({depth:g} m)" if depth is not None else
+           f"walk-down to the base of the first layer at least {c.contrast:g} times less pervious (vertical k) "
+           "than the one below")
+    crit = {"fs_heave": cr.fs_heave, "fs_uplift": cr.fs_uplift, "allowable_gradient": cr.allowable_gradient,
+            "source": "USACE ETL 1110-2-569 (2005) / EM 1110-2-1913 (2000), values from memory, unless set in "
+                      "the section file"}
+    return ExitChecks(boundary=name, x=x, y=y, s=s - s[0], distance_from_toe=direction * (x - toe_x),
+                      is_node=node.astype(np.int64), zone=zone, head=hs, gradient=gradient,
+                      normal_gradient=normal_gradient, blanket_gradient=blanket, thickness=np.where(has, z, np.nan),
+                      head_base=hb, h_excess=np.where(has, h_excess, np.nan), i_critical=ic, fs_heave=fs_heave,
+                      fs_uplift=fs_uplift, fs=fs, passes=passes, criteria=crit, toe_x=toe_x, toe_source=toe_src,
+                      top_stratum_method=tsm, notes=notes)
+
+
+def _unknown(name, names):
+    import difflib
+    near = difflib.get_close_matches(name, names, n=1)
+    return f"no boundary named '{name}'" + (f" (did you mean '{near[0]}'?)" if near else
+                                            f" (known: {', '.join(names) or 'none'})")
