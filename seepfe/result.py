@@ -156,6 +156,17 @@ class Result:
         """Total head (m) at points, an (n, 2) array of x, y in m; nan outside the section."""
         return self.interpolate(self.h, points)
 
+    # ----------------------------------------------------------------- underseepage checks
+    def exit_gradients(self, name: str, spacing: float | None = None, depth: float | None = None):
+        """Exit gradients, heave and uplift factors of safety along the named boundary.
+
+        Returns a :class:`seepfe.checks.ExitChecks` (.x, .y m; .gradient, .blanket_gradient m/m;
+        .fs -; .to_csv(path)). ``spacing`` (m) adds check points between the nodes; ``depth`` (m)
+        sets the base of the top stratum. See :mod:`seepfe.checks`.
+        """
+        from .checks import exit_gradients
+        return exit_gradients(self, name, spacing=spacing, depth=depth)
+
     # ----------------------------------------------------------------- reporting
     def summary(self) -> dict:
         """Plain-data summary: flows by boundary, balance, mesh and solver figures, input hash."""
