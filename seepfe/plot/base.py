@@ -1,0 +1,269 @@
+"""Building blocks shared by the section figures: the frame, zones, boundaries, mesh, legends.
+
+Every drawing here is vectorised (one collection per layer); nothing loops over elements.
+Coordinates are in m; the section is always drawn at equal scale (1 m across = 1 m up).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .style import FIG_WIDTH_IN, INK, KIND_COLOUR, MUTED, tint, zone_colours
+
+__all__ = ["Frame", "frame", "draw_zones", "draw_zone_edges", "draw_boundaries", "draw_mesh",
+           "material_handles", "fmt_k", "fmt_sci", "window_of", "detail_window", "triangulation",
+           "contour_pieces", "boundary_label"]
+
+_LEFT, _RIGHT, _TOP, _XLAB = 0.72, 0.18, 0.42, 0.44       # inches
+
+
+@dataclass
+class Frame:
+    """A figure with one equal-scale section axes; legends, colour bars and notes are stacked below
+    it, each measured, so nothing overlaps whatever its length (the saved image is cropped tight)."""
+
+    fig: object
+    ax: object
+    width_in: float
+    height_in: float
+    ax_box: tuple            # left, bottom, width, height in inches
+    cursor_in: float         # where the next item below the axes starts, inches from the bottom
+
+    def _renderer(self):
+        return self.fig.canvas.get_renderer()
+
+    def _height_in(self, artist) -> float:
+        return artist.get_window_extent(self._renderer()).height / self.fig.dpi
+
+    def _anchor(self, gap_in):
+        if not getattr(self, "_started", False):      # labels drawn under the section push the stack down
+            self._started = True
+            self.cursor_in = min(self.cursor_in, self.ax.get_tightbbox(self._renderer()).y0 / self.fig.dpi)
+        return (self.ax_box[0] / self.width_in, (self.cursor_in - gap_in) / self.height_in)
+
+    def legend(self, handles, ncol: int = 2, gap_in: float = 0.06, **kw):
+        """A legend below what is already stacked."""
+        if not handles:
+            return None
+        leg = self.fig.legend(handles=handles, loc="upper left", bbox_to_anchor=self._anchor(gap_in), ncol=ncol,
+                              borderaxespad=0.0, columnspacing=1.6, handletextpad=0.6, **kw)
+        self.cursor_in -= gap_in + self._height_in(leg)
+        return leg
+
+    def text(self, s: str, gap_in: float = 0.08, **kw):
+        """A note below what is already stacked."""
+        t = self.fig.text(*self._anchor(gap_in), s, ha="left", va="top", **kw)
+        self.cursor_in -= gap_in + self._height_in(t)
+        return t
+
+    def colorbar(self, mappable, label: str, width_in: float | None = None, gap_in: float = 0.1):
+        """A horizontal colour bar below what is already stacked."""
+        w = min(self.ax_box[2], 4.2) if width_in is None else width_in
+        h = 0.11
+        x, y = self._anchor(gap_in)
+        cax = self.fig.add_axes([x, y - h / self.height_in,
+                                 w / self.width_in, h / self.height_in])
+        cb = self.fig.colorbar(mappable, cax=cax, orientation="horizontal", spacing="proportional")
+        cb.set_label(label)
+        cb.outline.set_linewidth(0.4)
+        cb.ax.tick_params(labelsize=6.5, length=2)
+        bb = cax.get_tightbbox(self._renderer())
+        self.cursor_in = bb.y0 / self.fig.dpi
+        return cb
+
+
+def window_of(section, pad: float = 0.04) -> tuple:
+    """The drawing window (x0, x1, y0, y1) of the whole section with a margin, m."""
+    x0, y0, x1, y1 = section.outline.bounds
+    s = max(x1 - x0, y1 - y0)
+    return (x0 - pad * 0.5 * s, x1 + pad * 0.5 * s, y0 - pad * 0.3 * (y1 - y0) - 0.01 * s,
+            y1 + max(0.14 * (y1 - y0), 0.02 * s))
+
+
+def detail_window(section, max_ratio: float = 4.5):
+    """A closer window on the part of a long, flat section where the zones change (the embankment
+    and its toes), or None when the whole section already reads well (width / height <= max_ratio).
+
+    The window spans the zones narrower than half the section, widened by the section's depth on
+    each side, at the section's full height.
+    """
+    x0, y0, x1, y1 = section.outline.bounds
+    W, Hs = x1 - x0, y1 - y0
+    if W / max(Hs, 1e-300) <= max_ratio:
+        return None
+    narrow = [p for p in section.polygons if np.ptp(p[:, 0]) < 0.5 * W]
+    if not narrow:
+        return None
+    a = min(p[:, 0].min() for p in narrow) - Hs
+    b = max(p[:, 0].max() for p in narrow) + Hs
+    a, b = max(a, x0), min(b, x1)
+    if b - a > 0.8 * W:
+        return None
+    return (a, b, y0 - 0.04 * Hs, y1 + 0.16 * Hs)
+
+
+def frame(window, max_height_in: float = 6.5, title: str | None = None) -> Frame:
+    """A figure whose section axes has exactly the aspect of the window (no wasted space).
+
+    Parameters
+    ----------
+    window : (x0, x1, y0, y1) in m.
+    title : the figure title, drawn at the top left.
+    """
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+    x0, x1, y0, y1 = window
+    aw = FIG_WIDTH_IN - _LEFT - _RIGHT
+    ah = aw * (y1 - y0) / (x1 - x0)
+    if ah > max_height_in:
+        ah = max_height_in
+        aw = ah * (x1 - x0) / (y1 - y0)
+    top = _TOP if title else 0.12
+    H = top + ah + _XLAB
+    W = max(FIG_WIDTH_IN, _LEFT + aw + _RIGHT)
+    fig = Figure(figsize=(W, H))
+    FigureCanvasAgg(fig)
+    ax = fig.add_axes([_LEFT / W, _XLAB / H, aw / W, ah / H])
+    ax.set_xlim(x0, x1)
+    ax.set_ylim(y0, y1)
+    ax.set_aspect("equal", adjustable="box")
+    ax.set_xlabel("distance x (m)")
+    ax.set_ylabel("elevation y (m)")
+    if title:
+        ax.set_title(title, pad=6)
+    fr = Frame(fig, ax, W, H, (_LEFT, _XLAB, aw, ah), 0.0)
+    # the stack starts under the x-axis label
+    fr.cursor_in = ax.get_tightbbox(fr._renderer()).y0 / fig.dpi
+    return fr
+
+
+def fmt_sci(v: float, digits: int = 1) -> str:
+    """A number in mathtext scientific notation: 2.5e-05 -> '2.5 x 10^-5'."""
+    if v == 0:
+        return "0"
+    e = int(math.floor(math.log10(abs(v))))
+    m = v / 10**e
+    if round(m, digits) >= 10:
+        m, e = m / 10, e + 1
+    if e in (-1, 0, 1, 2):
+        return f"{v:.{max(digits + 1 - e, 0)}g}" if e >= 0 else f"{v:.{digits + 1}g}"
+    return rf"${m:.{digits}f}\times10^{{{e}}}$"
+
+
+def fmt_k(mat) -> str:
+    """Conductivity of a material for a legend, m/s."""
+    if mat.k is not None:
+        return f"k = {fmt_sci(mat.k)} m/s"
+    s = f"kx = {fmt_sci(mat.kx)}, ky = {fmt_sci(mat.ky)} m/s"
+    if mat.angle:
+        s += f", kx at {mat.angle:g}°"
+    return s
+
+
+def draw_zones(ax, section, lighten: float = 0.55, zorder: float = 0):
+    """Fill each zone with its material's colour; return {material: colour}."""
+    from matplotlib.collections import PolyCollection
+    mats = [z.material for z in section.spec.zones]
+    colours = zone_colours(mats, lighten)
+    pc = PolyCollection([p for p in section.polygons], facecolors=[colours[m] for m in mats],
+                        edgecolors="none", zorder=zorder)
+    ax.add_collection(pc)
+    return colours
+
+
+def draw_zone_edges(ax, section, colour=INK, lw: float = 0.6, zorder: float = 3):
+    from matplotlib.collections import PolyCollection
+    ax.add_collection(PolyCollection([p for p in section.polygons], facecolors="none", edgecolors=colour,
+                                     linewidths=lw, zorder=zorder))
+
+
+def material_handles(section, colours: dict) -> list:
+    """Legend patches: one per material, naming it and its conductivity."""
+    from matplotlib.patches import Patch
+    out = []
+    for name in dict.fromkeys(z.material for z in section.spec.zones):
+        mat = section.spec.materials[name]
+        out.append(Patch(facecolor=colours[name], edgecolor=INK, linewidth=0.5, label=f"{name}: {fmt_k(mat)}"))
+    return out
+
+
+def boundary_label(b) -> str:
+    """'river: head 4.50 m', 'landside: seepage face', ..."""
+    if b.kind == "head":
+        s = f"{b.name}: head {b.head:.2f} m"
+        return s + " (dry above)" if b.dry_above_level else s
+    if b.kind == "flux":
+        return f"{b.name}: inflow {fmt_sci(b.flux)} m/s"
+    return f"{b.name}: {'seepage face' if b.kind == 'seepage_face' else 'drain'}"
+
+
+def draw_boundaries(ax, section, labels: bool = True, window=None, zorder: float = 6):
+    """Draw each boundary along its polyline in the colour of its kind, labelled with kind and value.
+
+    The label sits at the middle of the longest visible segment, pushed out of the section along the
+    segment's normal.  Returns the legend handles (one per kind present).
+    """
+    from matplotlib.lines import Line2D
+    from shapely.geometry import Point
+    x0, x1, y0, y1 = window or ax.get_xlim() + ax.get_ylim()
+    kinds = {}
+    for b in section.spec.boundaries:
+        line = np.asarray(b.polyline, float)
+        col = KIND_COLOUR[b.kind]
+        ax.plot(line[:, 0], line[:, 1], color=col, lw=2.6, zorder=zorder, solid_capstyle="butt")
+        kinds.setdefault(b.kind, col)
+        if not labels:
+            continue
+        a, c = line[:-1], line[1:]
+        # clip segments to the window for the label position
+        ca = np.clip(a, [x0, y0], [x1, y1])
+        cc = np.clip(c, [x0, y0], [x1, y1])
+        L = np.linalg.norm(cc - ca, axis=1)
+        if L.max() <= 0:
+            continue
+        i = int(np.argmax(L))
+        mid = 0.5 * (ca[i] + cc[i])
+        t = (cc[i] - ca[i]) / L[i]
+        n = np.array([-t[1], t[0]])
+        eps = 1e-3 * section.extent
+        if section.outline.contains(Point(*(mid + eps * n))):
+            n = -n
+        off = 9.0
+        ha = "center" if abs(n[0]) < 0.5 else ("left" if n[0] > 0 else "right")
+        va = "center" if abs(n[1]) < 0.5 else ("bottom" if n[1] > 0 else "top")
+        ax.annotate(boundary_label(b), mid, xytext=(off * n[0], off * n[1]), textcoords="offset points",
+                    ha=ha, va=va, fontsize=7, color=col, zorder=zorder + 1, annotation_clip=True,
+                    bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.85))
+    names = {"head": "prescribed head", "seepage_face": "seepage face", "drain": "drain", "flux": "inflow"}
+    return [Line2D([], [], color=c, lw=2.6, label=names[k]) for k, c in kinds.items()]
+
+
+def triangulation(mesh):
+    """matplotlib Triangulation on every node (P2: four linear sub-triangles per element)."""
+    from matplotlib.tri import Triangulation
+    return Triangulation(mesh.points[:, 0], mesh.points[:, 1], mesh.linear_triangles())
+
+
+def draw_mesh(ax, mesh, colour=MUTED, lw: float = 0.25, zorder: float = 2):
+    """The element edges (straight sides of the elements), as one line collection."""
+    from matplotlib.collections import LineCollection
+    t = mesh.triangles
+    e = np.concatenate([t[:, [0, 1]], t[:, [1, 2]], t[:, [2, 0]]])
+    e = np.unique(np.sort(e, axis=1), axis=0)
+    lc = LineCollection(mesh.points[e], colors=colour, linewidths=lw, zorder=zorder,
+                        rasterized=len(e) > 60_000)
+    ax.add_collection(lc)
+    return lc
+
+
+def contour_pieces(cs) -> list:
+    """The polylines ((n, 2) arrays, m) of a contour set, all levels together."""
+    out = []
+    for p in cs.get_paths():
+        for seg in p.to_polygons(closed_only=False):
+            if len(seg) > 1:
+                out.append(np.asarray(seg))
+    return out

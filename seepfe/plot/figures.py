@@ -1,0 +1,281 @@
+"""The section figures: the section itself, head (or pressure) contours, the flow net, velocity arrows.
+
+Each function returns a ``matplotlib.figure.Figure`` (no pyplot); save it with
+:func:`seepfe.plot.save_figure`.  Fields are contoured with matplotlib's tri routines on the mesh's
+linear sub-triangles (P1 or P2 alike), so a large mesh costs one vectorised call per layer.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..flownet import flow_net, nice_step
+from . import base
+from .style import INK, MUTED, OKABE_ITO, field_cmap, style
+
+__all__ = ["section_figure", "field_figure", "flow_net_figure", "velocity_figure", "contour_levels",
+           "phreatic_lines", "FIELDS"]
+
+#: quantity -> (name, unit, function of the result giving nodal values)
+FIELDS = {
+    "total_head": ("total head", "m", lambda r: r.h),
+    "pressure_head": ("pressure head", "m", lambda r: r.pressure_head),
+    "pore_pressure": ("pore-water pressure", "kPa", lambda r: r.pore_pressure),
+}
+
+
+def contour_levels(vmin: float, vmax: float, target: int = 12) -> np.ndarray:
+    """Round contour levels (steps of 1, 2, 2.5 or 5 x 10^n) strictly inside (vmin, vmax)."""
+    span = vmax - vmin
+    if not np.isfinite(span) or span <= 0:
+        return np.array([])
+    step = nice_step(span, target)
+    first = np.ceil(vmin / step) * step
+    lv = first + step * np.arange(int(np.floor((vmax - first) / step)) + 1)
+    lv = np.round(lv, 12)
+    eps = 1e-9 * span
+    return lv[(lv > vmin + eps) & (lv < vmax - eps)]
+
+
+def _decimals(step: float) -> int:
+    return max(0, -int(np.floor(np.log10(step) + 1e-9))) + (1 if round(step / 10**np.floor(np.log10(step)), 6) == 2.5 else 0)
+
+
+def phreatic_lines(result) -> list:
+    """The phreatic surface as a list of (n, 2) polylines, m.
+
+    Uses ``result.phreatic_line()`` where the result provides it; otherwise the contour of pressure
+    head just below zero (so that boundaries held at zero pressure, such as a seepage face or a
+    submerged ground surface, are not traced).  Empty when no part of the section is above it.
+    """
+    if hasattr(result, "phreatic_line"):
+        pl = result.phreatic_line()
+        if pl is None:
+            return []
+        if hasattr(pl, "xy") and not isinstance(pl, np.ndarray):
+            pl = pl.xy
+        if isinstance(pl, np.ndarray) and pl.ndim == 2:
+            return [pl] if len(pl) > 1 else []
+        pieces = [np.asarray(p, float) for p in pl]
+        return [p for p in pieces if p.ndim == 2 and len(p) > 1]
+    p = result.pressure_head
+    H = float(np.ptp(result.h)) or 1.0
+    eps = 1e-6 * max(H, 1.0)
+    if p.min() >= -eps:
+        return []
+    from matplotlib.figure import Figure
+    tri = base.triangulation(result.mesh)
+    ax = Figure().add_subplot()
+    cs = ax.tricontour(tri, p, levels=[-eps])
+    return base.contour_pieces(cs)
+
+
+def _phreatic(ax, result, label=True):
+    from matplotlib.lines import Line2D
+    lines = phreatic_lines(result)
+    if not lines:
+        return []
+    from matplotlib.collections import LineCollection
+    ax.add_collection(LineCollection(lines, colors=INK, linewidths=1.5, zorder=7))
+    # the water-table mark (an inverted triangle) at the highest point of the line
+    top = max(lines, key=lambda s: s[:, 1].max())
+    i = int(np.argmax(top[:, 1]))
+    ax.plot([top[i, 0]], [top[i, 1]], marker="v", ms=6, color=INK, zorder=8, markeredgewidth=0)
+    return [Line2D([], [], color=INK, lw=1.5, marker="v", ms=5,
+                   label="phreatic surface (pressure head = 0)")]
+
+
+def _window(result, window):
+    return window if window is not None else base.window_of(result.section)
+
+
+def section_figure(section, mesh=None, window=None, title: str | None = None, show_mesh: bool = False):
+    """The section: zones filled by material (legend: name and k, m/s), boundaries by kind and value.
+
+    Parameters
+    ----------
+    section : seepfe.Section
+    mesh : seepfe.Mesh, optional
+        Drawn when ``show_mesh`` is true.
+    window : (x0, x1, y0, y1), optional
+        Part of the section to draw, m (default: all of it).
+    """
+    win = window if window is not None else base.window_of(section)
+    with style():
+        fr = base.frame(win, title=title or section.title or "Section")
+        ax = fr.ax
+        colours = base.draw_zones(ax, section)
+        if show_mesh and mesh is not None:
+            base.draw_mesh(ax, mesh, colour=INK, lw=0.2, zorder=2)
+        base.draw_zone_edges(ax, section)
+        bh = base.draw_boundaries(ax, section, window=win)
+        if show_mesh and mesh is not None:
+            from matplotlib.lines import Line2D
+            bh.append(Line2D([], [], color=INK, lw=0.4,
+                             label=f"mesh: {mesh.n_elements} P{mesh.order} triangles, {mesh.n_nodes} nodes"))
+        fr.legend(base.material_handles(section, colours), ncol=2)
+        fr.legend(bh, ncol=3)
+    return fr.fig
+
+
+def field_figure(result, quantity: str = "total_head", window=None, title: str | None = None,
+                 arrows: bool = False, n_levels: int = 18, show_phreatic: bool = True):
+    """Filled and labelled contours of a nodal field at round intervals, with the phreatic surface.
+
+    Parameters
+    ----------
+    quantity : {"total_head", "pressure_head", "pore_pressure"}
+    arrows : draw Darcy-velocity arrows on a sparse regular grid (linear scale, key in m/s).
+    n_levels : about how many contour intervals across the range.
+
+    The contour levels are returned on the figure as ``fig.seepfe_levels`` (for checks).
+    """
+    import matplotlib.colors as mcolors
+    if quantity not in FIELDS:
+        raise ValueError(f"unknown quantity '{quantity}' (use {', '.join(FIELDS)})")
+    label, unit, get = FIELDS[quantity]
+    v = np.asarray(get(result), float)
+    sec = result.section
+    win = _window(result, window)
+    vis = _visible(result.mesh.points, win)
+    vmin, vmax = float(v[vis].min()), float(v[vis].max())
+    lv = contour_levels(vmin, vmax, n_levels)
+    step = float(lv[1] - lv[0]) if len(lv) > 1 else max(vmax - vmin, 1e-12)
+    bounds = np.concatenate([[vmin], lv, [vmax]]) if vmax > vmin else np.array([vmin - 0.5, vmin + 0.5])
+    with style():
+        default = {"total_head": "Total head", "pressure_head": "Pressure head",
+                   "pore_pressure": "Pore-water pressure"}[quantity]
+        fr = base.frame(win, title=title or default)
+        ax = fr.ax
+        tri = base.triangulation(result.mesh)
+        cmap = field_cmap()
+        norm = mcolors.BoundaryNorm(bounds, cmap.N)
+        cf = ax.tricontourf(tri, v, levels=bounds, cmap=cmap, norm=norm, zorder=1)
+        cf.set_rasterized(True) if hasattr(cf, "set_rasterized") else None
+        handles = []
+        if len(lv):
+            cs = ax.tricontour(tri, v, levels=lv, colors=INK, linewidths=0.55, zorder=4)
+            dec = _decimals(step)
+            every = 1 if len(lv) <= 8 else 2          # label every other line when they are many
+            ax.clabel(cs, levels=lv[::every], fmt=lambda x: f"{x:.{dec}f}", fontsize=6.5, inline=True,
+                      inline_spacing=3)
+        base.draw_zone_edges(ax, sec, colour="white", lw=0.8, zorder=3)
+        bh = base.draw_boundaries(ax, sec, window=win)
+        if show_phreatic:
+            handles += _phreatic(ax, result)
+        if arrows:
+            handles += _arrows(ax, result, win)
+        cb = fr.colorbar(cf, f"{label} ({unit}); contours every {step:g} {unit}")
+        if len(bounds) > 9:
+            cb.set_ticks(lv[:: int(np.ceil(len(lv) / 8))])
+        fr.legend(bh + handles, ncol=3)
+    fr.fig.seepfe_levels = lv
+    fr.fig.seepfe_range = (vmin, vmax)
+    return fr.fig
+
+
+def _visible(points, win):
+    x0, x1, y0, y1 = win
+    m = (points[:, 0] >= x0) & (points[:, 0] <= x1) & (points[:, 1] >= y0) & (points[:, 1] <= y1)
+    return m if m.any() else np.ones(len(points), bool)
+
+
+def _arrows(ax, result, win, columns: int = 28, key_at=(0.86, 1.035), key_coords="axes", color="white"):
+    """Darcy velocity at the nodes of a regular grid over the window (one arrow per cell), m/s."""
+    from matplotlib.lines import Line2D
+    x0, x1, y0, y1 = win
+    d = (x1 - x0) / columns
+    xs = np.arange(x0 + d / 2, x1, d)
+    ys = np.arange(y0 + d / 2, y1, d)
+    X, Y = np.meshgrid(xs, ys)
+    P = np.column_stack([X.ravel(), Y.ravel()])
+    e, _ = result.locate(P)
+    ok = e >= 0
+    if not ok.any():
+        return []
+    V = result.velocity[e[ok]]
+    sp = np.linalg.norm(V, axis=1)
+    vmax = float(sp.max())
+    if vmax <= 0:
+        return []
+    p10 = 10 ** np.floor(np.log10(vmax))
+    ref = p10 * (5 if vmax / p10 >= 5 else 2 if vmax / p10 >= 2 else 1)     # a round key below the max
+    q = ax.quiver(P[ok, 0], P[ok, 1], V[:, 0], V[:, 1], angles="xy", scale_units="xy",
+                  scale=vmax / (0.9 * d), width=0.0022, headwidth=3.5, headlength=4, headaxislength=3.5,
+                  color=color, edgecolor=INK, linewidth=0.3 if color == "white" else 0, zorder=9, minlength=0.05,
+                  pivot="mid")
+    ax.quiverkey(q, key_at[0], key_at[1], ref, f"{base.fmt_sci(ref)} m/s", labelpos="E", coordinates=key_coords,
+                 fontproperties={"size": 7}, color=INK)
+    return [Line2D([], [], color=color, marker=r"$\rightarrow$", ms=9, mec=INK, mew=0.3 if color == "white" else 0,
+                   lw=0, label=f"Darcy velocity, linear scale (largest {base.fmt_sci(vmax, 2)} m/s)")]
+
+
+def flow_net_figure(result, window=None, title: str | None = None, n_drops: int | None = None,
+                    net=None, show_phreatic: bool = True):
+    """A flow net: equipotentials at Nd equal head drops and flow lines at equal flow from the
+    stream function (:mod:`seepfe.flownet`), with Nf, Nd and the check q = k H Nf / Nd.
+
+    The :class:`seepfe.flownet.FlowNet` drawn is returned on the figure as ``fig.seepfe_flow_net``.
+    """
+    sec = result.section
+    net = net or flow_net(result, n_drops=n_drops)
+    win = _window(result, window)
+    with style():
+        fr = base.frame(win, title=title or "Flow net")
+        ax = fr.ax
+        colours = base.draw_zones(ax, sec, lighten=0.8)
+        tri = base.triangulation(result.mesh)
+        eq = net.equipotential_levels
+        fl = net.flow_line_levels
+        from matplotlib.lines import Line2D
+        c_eq, c_fl = OKABE_ITO["vermillion"], OKABE_ITO["blue"]
+        if len(eq):
+            ax.tricontour(tri, result.h, levels=eq, colors=c_eq, linewidths=0.7, linestyles=[(0, (5, 2))],
+                          zorder=4)
+        if len(fl):
+            ax.tricontour(tri, net.psi, levels=fl, colors=c_fl, linewidths=0.9, zorder=5)
+        base.draw_zone_edges(ax, sec, colour=MUTED, lw=0.6, zorder=3)
+        bh = base.draw_boundaries(ax, sec, window=win)
+        handles = [Line2D([], [], color=c_fl, lw=0.9, label=f"flow line (flow {base.fmt_sci(net.dpsi, 2)} "
+                          "m³/s per m between lines)"),
+                   Line2D([], [], color=c_eq, lw=0.7, ls=(0, (5, 2)),
+                          label=f"equipotential (head drop {net.dh:.3g} m between lines)")]
+        if show_phreatic:
+            handles += _phreatic(ax, result)
+        fr.legend(handles + bh, ncol=2)
+        fr.legend(base.material_handles(sec, colours), ncol=2)
+        k_txt = base.fmt_sci(net.k_ref, 2)
+        if net.squares:
+            txt = (f"Nf = {net.n_channels:.2f} flow channels,  Nd = {net.n_drops} head drops,  H = {net.head_loss:.3g} m,  "
+                   f"k = {k_txt} m/s ({net.reference_material})\n"
+                   f"q = k H Nf / Nd = {base.fmt_sci(net.k_ref * net.head_loss * net.shape_factor, 3)} m³/s per m;  "
+                   f"solver: {base.fmt_sci(net.q_solver, 3)} m³/s per m")
+        else:
+            txt = (f"Nf = {net.n_channels:.2f} channels of equal flow,  Nd = {net.n_drops} head drops,  "
+                   f"H = {net.head_loss:.3g} m (zones differ in k: channels of equal flow, not squares)\n"
+                   f"q = Nf x flow per channel = {base.fmt_sci(net.q_total, 3)} m³/s per m;  "
+                   f"solver: {base.fmt_sci(net.q_solver, 3)} m³/s per m")
+        fr.text(txt, fontsize=7.5, color=INK, linespacing=1.5)
+    fr.fig.seepfe_flow_net = net
+    return fr.fig
+
+
+def velocity_figure(result, window=None, title: str | None = None, columns: int = 32):
+    """Darcy-velocity arrows on a sparse regular grid over the section (linear scale, key in m/s),
+    on the zones by material, with the phreatic surface."""
+    sec = result.section
+    win = _window(result, window)
+    with style():
+        fr = base.frame(win, title=title or "Darcy velocity")
+        ax = fr.ax
+        colours = base.draw_zones(ax, sec, lighten=0.78)
+        base.draw_zone_edges(ax, sec, colour=MUTED, lw=0.6, zorder=3)
+        bh = base.draw_boundaries(ax, sec, window=win)
+        handles = _phreatic(ax, result)
+        kx, ky = fr._anchor(0.12)
+        handles += _arrows(ax, result, win, columns=columns, key_at=(kx + 0.03, ky), key_coords="figure",
+                           color=OKABE_ITO["blue"])
+        fr.cursor_in -= 0.2
+        fr.legend(handles + bh, ncol=2)
+        fr.legend(base.material_handles(sec, colours), ncol=2)
+    return fr.fig

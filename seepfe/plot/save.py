@@ -1,0 +1,90 @@
+"""Write figures as PNG and SVG, and the standard set of figures of a result."""
+
+from __future__ import annotations
+
+import logging
+from dataclasses import dataclass
+from pathlib import Path
+
+from ..errors import SeepfeError
+from . import base
+
+__all__ = ["save_figure", "figure_set", "FigureItem"]
+
+log = logging.getLogger("seepfe")
+
+
+def save_figure(fig, stem, formats=("png", "svg"), dpi: int = 200) -> list[Path]:
+    """Save a figure as ``stem.png`` and ``stem.svg`` (or the given formats); return the paths."""
+    from .style import style
+    stem = Path(stem)
+    out = []
+    with style():
+        for f in formats:
+            p = stem.with_suffix("." + f)
+            fig.savefig(p, format=f, dpi=dpi, metadata={"Software": None} if f == "png" else {"Date": None})
+            out.append(p)
+    return out
+
+
+@dataclass
+class FigureItem:
+    """One figure of the standard set: file stem, caption, and the figure."""
+
+    name: str
+    caption: str
+    fig: object
+    png: bytes | None = None      # the PNG once written (the report embeds it instead of rendering again)
+
+
+def _profile_boundaries(result) -> list[str]:
+    return [b.name for b in result.section.spec.boundaries if b.kind in ("seepage_face", "drain")]
+
+
+def figure_set(result, show_mesh: bool = False, arrows: bool = False, quantity: str = "pore_pressure",
+               detail: bool = True, net=None):
+    """Yield the standard figures of a result (as :class:`FigureItem`, one at a time to keep memory low).
+
+    section, mesh (if asked), total head, ``quantity`` (pressure head or pore pressure), flow net,
+    velocity arrows (if asked),
+    each again on a closer window when the section is long and flat, and one exit-gradient profile
+    per seepage face or drain when the result offers ``exit_gradients``.
+    """
+    from ..flownet import flow_net
+    from .figures import field_figure, flow_net_figure, section_figure, velocity_figure
+    from .profile import exit_gradient_figure
+    sec = result.section
+    net = net or flow_net(result)
+    windows = [("", None)]
+    dw = base.detail_window(sec) if detail else None
+    if dw is not None:
+        windows.append(("_detail", dw))
+    for suffix, win in windows:
+        what = " (closer view)" if suffix else ""
+        yield FigureItem("section" + suffix, "The section: zones by material, boundaries by kind and value" + what,
+                         section_figure(sec, result.mesh, window=win, title=(sec.title or "Section") + what))
+        if show_mesh:
+            yield FigureItem("mesh" + suffix, "The finite-element mesh" + what,
+                             section_figure(sec, result.mesh, window=win, show_mesh=True, title="Mesh" + what))
+        yield FigureItem("total_head" + suffix, "Total head, contours at round intervals, with the phreatic "
+                         "surface" + what, field_figure(result, "total_head", window=win, title="Total head" + what))
+        lab = {"pore_pressure": "Pore-water pressure", "pressure_head": "Pressure head"}[quantity]
+        yield FigureItem(quantity + suffix, lab + what, field_figure(result, quantity, window=win,
+                                                                     title=lab + what))
+        yield FigureItem("flownet" + suffix, "Flow net: equipotentials and flow lines of equal flow" + what,
+                         flow_net_figure(result, window=win, net=net, title="Flow net" + what))
+        if arrows:
+            yield FigureItem("velocity" + suffix, "Darcy velocity arrows (linear scale)" + what,
+                             velocity_figure(result, window=win, title="Darcy velocity" + what))
+    if hasattr(result, "exit_gradients"):
+        for name in _profile_boundaries(result):
+            try:
+                prof = result.exit_gradients(name)
+            except (SeepfeError, KeyError, ValueError) as e:
+                log.info("no exit-gradient profile along '%s': %s", name, e)
+                continue
+            if prof is None or len(getattr(prof, "x", [])) < 2:
+                continue
+            safe = "".join(c if c.isalnum() or c in "-_" else "_" for c in name)
+            yield FigureItem(f"exit_gradient_{safe}", f"Exit gradients and factor of safety along '{name}'",
+                             exit_gradient_figure(prof, title=f"Exit gradients along '{name}'"))
