@@ -1,0 +1,43 @@
+"""``seepfe plot SECTION --out DIR``: solve and write every figure as PNG and SVG."""
+
+from __future__ import annotations
+
+from ..result import CAUTION
+
+
+def register(sub) -> None:
+    p = sub.add_parser("plot", help="solve a section and write its figures (PNG and SVG) to a folder")
+    p.add_argument("section", help="section file (JSON)")
+    p.add_argument("--out", required=True, help="output folder (replaced whole on success)")
+    p.add_argument("--order", type=int, choices=(1, 2), default=None, help="element order (default: file, 2)")
+    p.add_argument("--mesh", action="store_true", help="also draw the mesh")
+    p.add_argument("--arrows", action="store_true", help="also draw Darcy-velocity arrows")
+    p.add_argument("--pressure", choices=("pore_pressure", "pressure_head"), default="pore_pressure",
+                   help="second field figure: pore-water pressure (kPa, default) or pressure head (m)")
+    p.add_argument("--no-detail", dest="detail", action="store_false",
+                   help="no closer views of long, flat sections")
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    from ..flownet import flow_net
+    from ..output import atomic_dir, write_json
+    from ..plot import figure_set, save_figure
+    from ..solver import solve
+    res = solve(args.section, order=args.order)
+    net = flow_net(res)
+    written = []
+    with atomic_dir(args.out) as tmp:
+        for item in figure_set(res, show_mesh=args.mesh, arrows=args.arrows, quantity=args.pressure,
+                               detail=args.detail, net=net):
+            save_figure(item.fig, tmp / item.name)
+            written.append(item.name)
+        write_json(tmp / "figures.json", {"figures": {n: [f"{n}.png", f"{n}.svg"] for n in written},
+                                          "flow_net": net.as_dict(), "input_sha256": res.section.input_hash,
+                                          "caution": CAUTION})
+    print(f"written: {args.out}/ ({len(written)} figures as PNG and SVG: {', '.join(written)})")
+    sq = "" if net.squares else " (zones differ in k: channels of equal flow)"
+    print(f"flow net: Nf = {net.n_channels:.2f}, Nd = {net.n_drops}{sq}; q = {net.q_total:.4e} m3/s per m "
+          f"(solver {net.q_solver:.4e})")
+    print(f"CAUTION: {CAUTION}")
+    return 0 if res.solver_info.get("converged", True) else 3

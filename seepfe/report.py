@@ -1,0 +1,342 @@
+"""A one-file HTML report of a solved section: inputs, figures, flows, checks, governing values.
+
+The file is self-contained (figures embedded as base64 PNG, styles inline, no script, no external
+link), so it can be mailed, archived or printed to PDF from any browser.  It carries the seepfe
+version, the SHA-256 of the input and the caution (:data:`seepfe.result.CAUTION`).
+
+>>> from seepfe.report import write_report                        # doctest: +SKIP
+>>> write_report(result, "out/report")                             # out/report/report.html + figures
+"""
+
+from __future__ import annotations
+
+import base64
+import datetime as _dt
+import html
+import io
+import logging
+import math
+from pathlib import Path
+
+import numpy as np
+
+from .errors import SeepfeError
+from .result import CAUTION
+
+__all__ = ["build_report", "write_report", "governing_values", "exit_profiles"]
+
+log = logging.getLogger("seepfe")
+
+_CSS = """
+body{font-family:"DejaVu Sans",Verdana,Arial,sans-serif;color:#2b2b2b;max-width:60rem;margin:1.5rem auto;
+ padding:0 1.2rem;line-height:1.45;font-size:15px;background:#fff}
+h1{font-size:1.45rem;margin:.2rem 0 .3rem}h2{font-size:1.15rem;margin:2rem 0 .6rem;padding-bottom:.2rem;
+ border-bottom:1px solid #d8d8d8}h3{font-size:1rem;margin:1.2rem 0 .4rem}
+.meta{color:#555;font-size:.85rem}.meta code{font-size:.8rem;word-break:break-all}
+.caution{border-left:4px solid #D55E00;background:#fbf1ea;padding:.6rem .9rem;margin:1rem 0}
+.gov{display:grid;grid-template-columns:repeat(auto-fit,minmax(13rem,1fr));gap:.6rem;margin:.6rem 0}
+.gov div{border:1px solid #d8d8d8;border-radius:4px;padding:.5rem .7rem}
+.gov b{display:block;font-size:1.15rem}.gov span{color:#555;font-size:.82rem}
+.fail{color:#B34A00;font-weight:bold}.pass{color:#006e50;font-weight:bold}
+table{border-collapse:collapse;margin:.4rem 0 1rem;font-size:.86rem}
+th,td{border-bottom:1px solid #e2e2e2;padding:.25rem .6rem;text-align:left;vertical-align:top}
+th{background:#f4f4f4;font-weight:600}td.n{text-align:right;font-variant-numeric:tabular-nums}
+figure{margin:1rem 0 1.6rem;page-break-inside:avoid}figure img{max-width:100%;height:auto;display:block}
+figcaption{font-size:.85rem;color:#444;margin-top:.3rem}
+.note{font-size:.85rem;color:#555}
+@media print{body{max-width:none;font-size:11pt}h2{page-break-after:avoid}}
+"""
+
+
+def _e(s) -> str:
+    return html.escape(str(s), quote=True)
+
+
+def _num(v, fmt="{:.4g}") -> str:
+    if v is None:
+        return "–"
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return _e(v)
+    if math.isnan(f):
+        return "–"
+    if math.isinf(f):
+        return "∞" if f > 0 else "−∞"
+    return fmt.format(f)
+
+
+def _table(header: list[str], rows: list[list], numeric: set[int] | None = None, cls: str = "") -> str:
+    numeric = numeric or set()
+    h = "".join(f"<th>{_e(x)}</th>" for x in header)
+    body = []
+    for r in rows:
+        cells = []
+        for i, c in enumerate(r):
+            raw = c if isinstance(c, _Raw) else _e(c)
+            cells.append(f'<td class="n">{raw}</td>' if i in numeric else f"<td>{raw}</td>")
+        body.append("<tr>" + "".join(cells) + "</tr>")
+    return f'<table class="{cls}"><thead><tr>{h}</tr></thead><tbody>{"".join(body)}</tbody></table>'
+
+
+class _Raw(str):
+    """Trusted HTML (already escaped)."""
+
+
+def _png_data(fig, dpi: int = 150) -> tuple[str, bytes]:
+    from .plot.style import style
+    buf = io.BytesIO()
+    with style():
+        fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": None})
+    data = buf.getvalue()
+    return "data:image/png;base64," + base64.b64encode(data).decode("ascii"), data
+
+
+def exit_profiles(result) -> dict:
+    """{boundary name: exit-gradient checks} for the boundaries checked by default, when the result
+    offers ``exit_gradients`` (empty otherwise)."""
+    if not hasattr(result, "exit_gradients"):
+        return {}
+    try:
+        from .checks.exit import default_boundaries
+        names = default_boundaries(result.section)
+    except ImportError:
+        names = [b.name for b in result.section.spec.boundaries if b.kind in ("seepage_face", "drain")]
+    out = {}
+    for n in names:
+        try:
+            p = result.exit_gradients(n)
+        except (SeepfeError, KeyError, ValueError) as e:
+            log.info("no exit-gradient checks along '%s': %s", n, e)
+            continue
+        if p is not None and len(getattr(p, "x", [])) >= 2:
+            out[n] = p
+    return out
+
+
+def governing_values(result, net=None, profiles: dict | None = None) -> dict:
+    """The values an engineer reads first: seepage, flow-net numbers, least factor of safety,
+    largest exit gradient, balance.  Units in the keys."""
+    from .flownet import flow_net
+    net = net or flow_net(result)
+    bal = result.balance
+    q = 0.5 * (bal["inflow_m3_s_per_m"] + bal["outflow_m3_s_per_m"])
+    g = {"seepage_m3_s_per_m": q, "seepage_m3_day_per_m": q * 86400.0,
+         "head_loss_m": net.head_loss, "flow_net_Nf": net.n_channels, "flow_net_Nd": net.n_drops,
+         "flow_net_square": net.squares, "balance_relative_error": bal["relative_error"],
+         "head_min_m": float(result.h.min()), "head_max_m": float(result.h.max())}
+    profiles = exit_profiles(result) if profiles is None else profiles
+    least, imax = None, None
+    for name, p in profiles.items():
+        fs = np.asarray(p.fs, float)
+        fz = np.where(np.isfinite(fs), fs, np.inf)
+        if len(fz) and np.isfinite(fz).any():
+            k = int(np.argmin(fz))
+            d = getattr(p, "distance_from_toe", None)
+            cand = {"value": float(fz[k]), "boundary": name, "x_m": float(p.x[k]),
+                    "distance_from_toe_m": float(d[k]) if d is not None else None}
+            if least is None or cand["value"] < least["value"]:
+                least = cand
+        gr = np.asarray(p.gradient, float)
+        ga = np.where(np.isfinite(gr), gr, -np.inf)
+        if len(ga) and np.isfinite(ga).any():
+            k = int(np.argmax(ga))
+            cand = {"value_m_per_m": float(ga[k]), "boundary": name, "x_m": float(p.x[k])}
+            if imax is None or cand["value_m_per_m"] > imax["value_m_per_m"]:
+                imax = cand
+    g["least_factor_of_safety"] = least
+    g["largest_exit_gradient"] = imax
+    passes = [bool(np.all(np.asarray(p.passes, bool))) for p in profiles.values() if hasattr(p, "passes")]
+    g["exit_checks_pass"] = (all(passes) if passes else None)
+    return g
+
+
+def build_report(result, figures=None, *, net=None, profiles: dict | None = None, show_mesh: bool = True,
+                 arrows: bool = True, generated: str | None = None) -> str:
+    """The report as one HTML string.
+
+    Parameters
+    ----------
+    result : seepfe.Result
+    figures : iterable of :class:`seepfe.plot.FigureItem`, optional
+        Default: the standard set (:func:`seepfe.plot.figure_set`), with the mesh and velocity arrows.
+    generated : timestamp text (default: now, UTC).
+    """
+    from . import __version__
+    from .flownet import flow_net
+    from .plot import figure_set
+    from .plot.base import boundary_label
+    sec, m = result.section, result.mesh
+    spec = sec.spec
+    net = net or flow_net(result)
+    profiles = exit_profiles(result) if profiles is None else profiles
+    gov = governing_values(result, net, profiles)
+    summary = result.summary()
+    generated = generated or _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+    if figures is None:
+        figures = figure_set(result, show_mesh=show_mesh, arrows=arrows, net=net)
+    title = spec.title or sec.source
+    P = []
+    P.append(f"<h1>{_e(title)}</h1>")
+    P.append(f'<p class="meta">Steady seepage by finite elements · seepfe {_e(__version__)} · input '
+             f"<code>{_e(sec.source)}</code> · SHA-256 <code>{_e(sec.input_hash)}</code> · {_e(generated)}</p>")
+    P.append(f'<p class="caution"><b>Caution.</b> {_e(CAUTION)}</p>')
+
+    # governing values
+    P.append("<h2>Governing values</h2>")
+    cards = [(f"{_num(gov['seepage_m3_s_per_m'], '{:.3e}')} m³/s per m",
+              f"seepage through the section ({_num(gov['seepage_m3_day_per_m'], '{:.3g}')} m³/day per m)"),
+             (f"{_num(gov['head_loss_m'], '{:.3f}')} m", "total head loss H across the section")]
+    if net.squares:
+        cards.append((f"Nf / Nd = {net.n_channels:.2f} / {net.n_drops}",
+                      f"flow net: q = k H Nf/Nd = {_num(net.k_ref * net.head_loss * net.shape_factor, '{:.3e}')} m³/s per m "
+                      f"with k = {_num(net.k_ref, '{:.3g}')} m/s"))
+    else:
+        cards.append((f"Nf = {net.n_channels:.0f}, Nd = {net.n_drops}",
+                      "flow net: channels of equal flow (zones differ in k)"))
+    lf = gov["least_factor_of_safety"]
+    if lf is not None:
+        ok = gov["exit_checks_pass"]
+        verdict = "" if ok is None else (' <span class="pass">passes</span>' if ok else ' <span class="fail">fails</span>')
+        where = (f" at {lf['distance_from_toe_m']:.1f} m from the toe" if lf.get("distance_from_toe_m") is not None
+                 else f" at x = {lf['x_m']:.1f} m")
+        cards.append((_Raw(f"{_num(lf['value'], '{:.2f}')}{verdict}"),
+                      f"least factor of safety (heave/uplift) along '{lf['boundary']}'{where}"))
+    im = gov["largest_exit_gradient"]
+    if im is not None:
+        cards.append((f"{_num(im['value_m_per_m'], '{:.3f}')} m/m",
+                      f"largest vertical exit gradient along '{im['boundary']}' at x = {im['x_m']:.1f} m"))
+    cards.append((f"{gov['balance_relative_error']:.1e}", "relative flow-balance error (in − out) / in"))
+    P.append('<div class="gov" id="governing">' + "".join(
+        f"<div><b>{v if isinstance(v, _Raw) else _e(v)}</b><span>{_e(t)}</span></div>" for v, t in cards) + "</div>")
+    if not profiles:
+        P.append('<p class="note">No exit-gradient checks in this result (no seepage face to check, or the '
+                 "checks are not available in this version).</p>")
+
+    # inputs
+    P.append("<h2>Inputs</h2><h3>Materials</h3>")
+    rows = []
+    for n, mt in spec.materials.items():
+        kx = mt.k if mt.k is not None else mt.kx
+        ky = mt.k if mt.k is not None else mt.ky
+        rows.append([n, mt.description or "", _num(kx, "{:.3g}"), _num(ky, "{:.3g}"), _num(mt.angle, "{:g}"),
+                     _num(mt.unit_weight, "{:g}")])
+    P.append(_table(["material", "description", "kx (m/s)", "ky (m/s)", "angle of kx (°)", "unit weight (kN/m³)"],
+                    rows, {2, 3, 4, 5}))
+    P.append("<h3>Zones</h3>")
+    P.append(_table(["zone", "material", "area (m²)", "vertices"],
+                    [[z.name, z.material, _num(abs(_area(p)), "{:.4g}"), len(p)]
+                     for z, p in zip(spec.zones, sec.polygons)], {2, 3}))
+    P.append("<h3>Boundaries</h3>")
+    brow = []
+    for b in spec.boundaries:
+        line = np.asarray(b.polyline, float)
+        L = float(np.linalg.norm(np.diff(line, axis=0), axis=1).sum())
+        brow.append([b.name, b.kind.replace("_", " "), boundary_label(b).split(": ", 1)[1], _num(L, "{:.4g}")])
+    P.append(_table(["boundary", "kind", "condition", "polyline length (m)"], brow, {3}))
+    P.append('<p class="note">Outline edges not on any boundary carry no flow. Unit weight of water '
+             f"{_num(sec.gamma_w, '{:g}')} kN/m³.</p>")
+    st = m.stats
+    P.append("<h3>Mesh</h3>")
+    P.append(_table(["elements", "nodes", "order", "element size (m)", "smallest angle (°)", "worst quality (-)"],
+                    [[st.get("elements"), st.get("nodes"), f"P{st.get('order')}", _num(st.get("size_m"), "{:.3g}"),
+                      _num(st.get("min_angle_deg"), "{:.1f}"), _num(st.get("worst_quality"), "{:.3f}")]],
+                    {0, 1, 3, 4, 5}))
+
+    # figures
+    P.append("<h2>Figures</h2>")
+    for i, item in enumerate(figures, 1):
+        png = getattr(item, "png", None)
+        uri = ("data:image/png;base64," + base64.b64encode(png).decode("ascii")) if png else _png_data(item.fig)[0]
+        _close(item.fig)
+        P.append(f'<figure id="fig-{_e(item.name)}"><img src="{uri}" alt="{_e(item.caption)}">'
+                 f"<figcaption>Figure {i}. {_e(item.caption)}.</figcaption></figure>")
+
+    # flows
+    P.append("<h2>Flows</h2>")
+    P.append(_table(["boundary", "kind", "flow (m³/s per m, + into the section)", "flow (m³/day per m)"],
+                    [[b.name, b.kind.replace("_", " "), _num(result.boundary_flow(b.name), "{:+.4e}"),
+                      _num(86400 * result.boundary_flow(b.name), "{:+.4g}")] for b in spec.boundaries], {2, 3}))
+    bal = result.balance
+    P.append(_table(["inflow (m³/s per m)", "outflow (m³/s per m)", "net (m³/s per m)", "relative error (-)"],
+                    [[_num(bal["inflow_m3_s_per_m"], "{:.4e}"), _num(bal["outflow_m3_s_per_m"], "{:.4e}"),
+                      _num(bal["net_m3_s_per_m"], "{:+.2e}"), _num(bal["relative_error"], "{:.1e}")]], {0, 1, 2, 3}))
+    fd = net.as_dict()
+    P.append("<h3>Flow net</h3>")
+    P.append(_table(["quantity", "value"], [
+        ["flow channels Nf (-)", _num(fd["n_channels_Nf"], "{:.3f}")],
+        ["equipotential drops Nd (-)", fd["n_drops_Nd"]],
+        ["head drop between equipotentials (m)", _num(fd["head_drop_m"], "{:.4g}")],
+        ["flow per channel (m³/s per m)", _num(fd["flow_per_channel_m3_s_per_m"], "{:.4e}")],
+        ["reference k (m/s)", f"{_num(fd['k_ref_m_s'], '{:.3g}')} ({fd['reference_material']})"],
+        ["net of squares", "yes" if net.squares else "no (zones differ in k: channels of equal flow)"],
+        ["q from the stream function (m³/s per m)", _num(fd["q_stream_function_m3_s_per_m"], "{:.4e}")],
+        ["q from the boundary reactions (m³/s per m)", _num(fd["q_solver_m3_s_per_m"], "{:.4e}")],
+        ["stream-function misfit (-)", _num(fd["stream_function_misfit"], "{:.2e}")]], {1}))
+
+    # checks
+    if profiles:
+        P.append("<h2>Exit-gradient, heave and uplift checks</h2>")
+        rows = []
+        for name, p in profiles.items():
+            gv = p.governing if hasattr(p, "governing") else {}
+            mf = gv.get("min_fs") or {}
+            mg = gv.get("max_gradient") or {}
+            mb = gv.get("max_blanket_gradient") or {}
+            ok = gv.get("passes")
+            rows.append([name, len(p.x), _num(mg.get("value_m_per_m"), "{:.3f}"), _num(mb.get("value_m_per_m"), "{:.3f}"),
+                         _num(mf.get("value"), "{:.2f}"), mf.get("kind", "–"), _num(mf.get("distance_from_toe_m"), "{:.1f}"),
+                         _num(gv.get("fails_within_m_of_toe"), "{:.1f}"),
+                         _Raw('<span class="pass">passes</span>' if ok else '<span class="fail">fails</span>')
+                         if ok is not None else "–"])
+        P.append(_table(["boundary", "points", "largest exit gradient (m/m)", "largest top-stratum gradient (m/m)",
+                         "least FS (-)", "governed by", "at distance from toe (m)", "fails up to (m from toe)",
+                         "verdict"], rows, {1, 2, 3, 4, 6, 7}))
+        crit = next((getattr(p, "criteria", None) for p in profiles.values() if getattr(p, "criteria", None)), None)
+        if crit:
+            P.append(_table(["criterion", "value"], [[k.replace("_", " "), v] for k, v in crit.items()], {}))
+        notes = [n for p in profiles.values() for n in getattr(p, "notes", [])]
+        for n in dict.fromkeys(notes):
+            P.append(f'<p class="note">{_e(n)}</p>')
+
+    # solver
+    P.append("<h2>Solver</h2>")
+    sv = dict(summary.get("solver", {}))
+    times = sv.pop("times_s", {}) or {}
+    srows = [[k.replace("_", " "), _e(v)] for k, v in sv.items() if not isinstance(v, (dict, list))]
+    srows += [[f"time: {k} (s)", _num(v, "{:.3f}")] for k, v in times.items()]
+    P.append(_table(["figure", "value"], srows, {1}))
+    P.append(f'<p class="meta">seepfe {_e(__version__)} · input SHA-256 <code>{_e(sec.input_hash)}</code></p>')
+    P.append(f'<p class="caution"><b>Caution.</b> {_e(CAUTION)}</p>')
+    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+            f"<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\"><title>{_e(title)} – seepfe report"
+            f"</title><meta name=\"generator\" content=\"seepfe {_e(__version__)}\"><style>{_CSS}</style></head>"
+            "<body>\n" + "\n".join(P) + "\n</body></html>\n")
+
+
+def _area(p) -> float:
+    x, y = p[:, 0], p[:, 1]
+    return 0.5 * float(np.sum(x * np.roll(y, -1) - np.roll(x, -1) * y))
+
+
+def _close(fig) -> None:
+    fig.clear()
+
+
+def write_report(result, folder, *, show_mesh: bool = True, arrows: bool = True, formats=("png", "svg")) -> Path:
+    """Write ``report.html`` and every figure (PNG and SVG) into an existing folder; return the HTML path."""
+    from .plot import figure_set, save_figure
+    from .flownet import flow_net
+    folder = Path(folder)
+    net = flow_net(result)
+    (folder / "figures").mkdir(exist_ok=True)
+    items = []
+    for item in figure_set(result, show_mesh=show_mesh, arrows=arrows, net=net):
+        paths = save_figure(item.fig, folder / "figures" / item.name, formats=formats)
+        item.png = next((p.read_bytes() for p in paths if p.suffix == ".png"), None)   # embed what was written
+        _close(item.fig)
+        items.append(item)
+    text = build_report(result, figures=items, net=net)
+    path = folder / "report.html"
+    path.write_text(text, encoding="utf-8")
+    return path
