@@ -60,11 +60,16 @@ class ChecksReport:
         rows = []
         for name, d in self.hand.items():
             if not d.get("applicable"):
-                rows.append([name, "-", "-", "not applicable: " + d.get("reason", "")])
                 continue
             for label, hv, fv in d.get("compare", []):
                 rows.append([f"{name}: {label}", _fmt(hv), _fmt(fv), d.get("remark", "")])
         return rows
+
+
+    def not_applicable(self) -> list[str]:
+        """One line per hand method whose assumptions the section does not meet, with the reason."""
+        return [f"{name}: not applicable: {d.get('reason', '')}" for name, d in self.hand.items()
+                if not d.get("applicable")]
 
 
 def _fmt(v):

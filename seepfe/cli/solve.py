@@ -20,8 +20,13 @@ def run(args) -> int:
     from ..solver import solve
     res = solve(args.section, order=args.order, linear=args.linear)
     summary = res.summary()
+    from ..checks.report import run_checks
+    checks = run_checks(res)
+    summary["checks"] = checks.to_dict()
     with atomic_dir(args.out) as tmp:
         write_result(res, tmp, summary)
+        for name, ex in checks.exits.items():
+            ex.to_csv(tmp / f"checks_{_safe(name)}.csv")
     print(table(f"{res.section.title or res.section.source}: flows (m3/s per m, + into the section)",
                 ["boundary", "kind", "flow (m3/s per m)"],
                 [[b.name, b.kind, f"{res.boundary_flow(b.name):+.4e}"] for b in res.section.spec.boundaries]))
@@ -32,6 +37,23 @@ def run(args) -> int:
     print(f"mesh: {summary['mesh']['elements']} P{summary['mesh']['order']} triangles, "
           f"{summary['mesh']['nodes']} nodes; solver: {sv['backend']}, {sv['unknowns']} unknowns, "
           f"{sv['seepage_face_passes']} pass(es)")
-    print(f"written: {args.out}/ (summary.json, nodes.csv, elements.csv, result.vtu)")
+    if checks.exits:
+        print(table("underseepage checks (governing values; FS -, gradients m/m, x and distances m)",
+                    ["boundary", "least FS", "at x (m)", "largest surface gradient", "largest top-stratum gradient",
+                     "fails within (m of toe)", "criteria"], checks.governing_rows()))
+        rows = checks.hand_rows()
+        if rows:
+            print(table("hand methods beside the FE", ["method: quantity", "hand", "FE", "remark"], rows))
+        for line in checks.not_applicable():
+            print(f"  {line}")
+    for note in checks.notes + [n for ex in checks.exits.values() for n in ex.notes]:
+        print(f"note: {note}")
+    extra = "".join(f", checks_{_safe(n)}.csv" for n in checks.exits)
+    print(f"written: {args.out}/ (summary.json, nodes.csv, elements.csv, result.vtu{extra})")
     print(f"CAUTION: {CAUTION}")
     return 0 if sv.get("converged", True) else 3
+
+
+def _safe(name: str) -> str:
+    """A boundary name as a file-name part."""
+    return "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in name)
