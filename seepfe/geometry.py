@@ -7,7 +7,7 @@ or boundary and where the fault is.  Coordinates are in m.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import shapely
@@ -19,7 +19,7 @@ from shapely.ops import unary_union
 
 from .errors import SectionError
 
-__all__ = ["Graph", "clean_polygon", "check_tiling", "build_graph", "fmt_xy"]
+__all__ = ["Graph", "clean_polygon", "check_tiling", "check_barriers", "build_graph", "fmt_xy"]
 
 
 def fmt_xy(p) -> str:
@@ -104,7 +104,11 @@ class Graph:
     points: (P, 2) float, m. segments: (S, 2) int point indices. loops: per zone, signed segment
     indices (+s runs segments[s] forward, -(s+1) backward) in counter-clockwise order.
     outline: (S,) bool, segment on the outline. boundary: (S,) int index into the boundaries,
-    -1 where none (no-flow or internal).
+    -1 where none (no-flow or internal). barrier: (S,) int index into the barriers, -1 where none.
+    embed: (S,) int zone index of a barrier segment that lies inside a zone (not on a zone edge) and
+    is embedded in that zone's surface, -1 otherwise.  Barrier segments inside a zone belong to no loop.
+    barrier_forward: (S,) bool, the barrier polyline runs along the segment from its first to its
+    second point (so "left of the barrier" follows the polyline as the user drew it).
     """
 
     points: np.ndarray
@@ -112,6 +116,9 @@ class Graph:
     loops: tuple
     outline: np.ndarray
     boundary: np.ndarray
+    barrier: np.ndarray = field(default=None)
+    embed: np.ndarray = field(default=None)
+    barrier_forward: np.ndarray = field(default=None)
 
 
 def _dist_to_segment(p: np.ndarray, a: np.ndarray, b: np.ndarray):
@@ -134,15 +141,91 @@ def _on_polyline(p: np.ndarray, line: np.ndarray, tol: float) -> np.ndarray:
     return hit
 
 
+def check_barriers(names: list[str], lines: list, outline: Polygon, tol: float) -> list[np.ndarray]:
+    """Check barrier polylines; return them as (n, 2) arrays without repeated points, plus the points
+    where they cross zone edges added later by :func:`build_graph`.
+
+    A barrier must have length, must not cross or touch itself, must stay inside the section, may meet
+    the outline only at its ends, and must not cross or touch another barrier.
+    """
+    out = []
+    for name, raw in zip(names, lines):
+        p = np.asarray(raw, dtype=float)
+        keep = np.ones(len(p), bool)
+        keep[1:] = np.linalg.norm(np.diff(p, axis=0), axis=1) > tol
+        p = p[keep]
+        if len(p) < 2:
+            raise SectionError(f"barrier '{name}': polyline has zero length")
+        line = LineString(p)
+        if not line.is_simple:
+            where = None
+            for i in range(len(p) - 1):
+                si = LineString(p[i:i + 2])
+                for j in range(i + 1, len(p) - 1):
+                    sj = LineString(p[j:j + 2])
+                    inter = si.intersection(sj)
+                    if inter.is_empty:
+                        continue
+                    if j == i + 1 and inter.geom_type == "Point":
+                        continue  # consecutive segments share their vertex
+                    where = inter.representative_point().coords[0]
+                    break
+                if where is not None:
+                    break
+            raise SectionError(f"barrier '{name}': polyline crosses itself"
+                               + (f" near {fmt_xy(where)}" if where is not None else ""))
+        off = line.difference(outline.buffer(tol * 4))
+        if off.length > tol * 10:
+            c = off.geoms[0].coords[0] if hasattr(off, "geoms") else off.coords[0]
+            raise SectionError(f"barrier '{name}': polyline leaves the section near {fmt_xy(c)}")
+        touch = line.intersection(outline.boundary.buffer(tol * 4))
+        ends = [shapely.Point(p[0]), shapely.Point(p[-1])]
+        for piece in getattr(touch, "geoms", [touch]):
+            if piece.is_empty:
+                continue
+            if min(piece.distance(e) for e in ends) > tol * 8:
+                raise SectionError(f"barrier '{name}': touches the outline of the section near "
+                                   f"{fmt_xy(piece.representative_point().coords[0])}; a barrier may meet "
+                                   f"the outline only at its ends")
+        out.append(p)
+    shp = [LineString(p).buffer(tol * 2) for p in out]
+    for i in range(len(out)):
+        for j in range(i + 1, len(out)):
+            if shp[i].intersects(shp[j]):
+                c = shp[i].intersection(shp[j]).representative_point().coords[0]
+                raise SectionError(f"barriers '{names[i]}' and '{names[j]}' cross or touch near {fmt_xy(c)}; "
+                                   f"join them into one polyline or keep them apart")
+    return out
+
+
+def _crossings(polys: list[np.ndarray], line: np.ndarray) -> np.ndarray:
+    """Points where a barrier polyline crosses or touches zone edges (m), as an (n, 2) array."""
+    edges = shapely.MultiLineString([np.vstack([p, p[:1]]) for p in polys])
+    inter = LineString(line).intersection(edges)
+    pts = []
+    for g in getattr(inter, "geoms", [inter]):
+        if g.is_empty:
+            continue
+        if g.geom_type == "Point":
+            pts.append(g.coords[0])
+        else:  # a run along a zone edge: its ends
+            pts.extend(g.boundary.geoms[k].coords[0] for k in range(len(g.boundary.geoms)))
+    return np.array(pts, dtype=float).reshape(-1, 2)
+
+
 def build_graph(zone_names: list[str], polys: list[np.ndarray], outline: Polygon,
-                bnames: list[str], blines: list[np.ndarray], tol: float) -> Graph:
+                bnames: list[str], blines: list[np.ndarray], tol: float,
+                barriers: tuple = ()) -> Graph:
     """Join zone polygons into one conformal graph and map outline segments to boundaries.
 
     A vertex of one zone (or of a boundary polyline) that lies on another zone's edge is inserted
     into that edge, so T-junctions mesh conformally and boundaries begin and end at mesh nodes.
+    barriers: (name, (n, 2) polyline) pairs already checked by :func:`check_barriers`; their segments
+    join the graph, as zone edges where they coincide with one, else embedded in their zone.
     """
     # unique points, merged within tol
-    raw = np.vstack(polys + [bl for bl in blines])
+    xlines = [np.vstack([bl, _crossings(polys, bl)]) for _, bl in barriers]
+    raw = np.vstack(polys + [bl for bl in blines] + xlines)
     pairs = cKDTree(raw).query_pairs(tol, output_type="ndarray")
     adj = coo_matrix((np.ones(len(pairs)), (pairs[:, 0], pairs[:, 1])), shape=(len(raw), len(raw)))
     _, label = connected_components(adj, directed=False)
@@ -213,5 +296,50 @@ def build_graph(zone_names: list[str], polys: list[np.ndarray], outline: Polygon
             raise SectionError(f"boundary '{name}': polyline covers no edge of the outline "
                                f"(it starts at {fmt_xy(bl[0])})")
         boundary[hit] = bi
+
+    # barrier segments: split at every graph point on them; reuse zone edges, embed the rest
+    barrier = np.full(len(segments), -1, dtype=np.int64)
+    forward: dict[int, bool] = {}
+    new_segs: list[tuple[int, int]] = []
+    new_bar: list[int] = []
+    for bi, (name, bl) in enumerate(barriers):
+        for a, b in zip(bl[:-1], bl[1:]):
+            dist, t = _dist_to_segment(points, a, b)
+            on = np.flatnonzero(dist <= tol)
+            chain = on[np.argsort(t[on])]
+            for p, q in zip(chain[:-1].tolist(), chain[1:].tolist()):
+                key = (p, q) if p < q else (q, p)
+                s = key_to_seg.get(key)
+                if s is not None and s < len(segments):
+                    if outline_mask[s]:
+                        raise SectionError(f"barrier '{name}': runs along the outline of the section from "
+                                           f"{fmt_xy(points[p])} to {fmt_xy(points[q])}; the outline is "
+                                           f"no-flow already")
+                    barrier[s] = bi
+                    forward[s] = p == int(segments[s, 0])
+                elif s is None:
+                    forward[len(segments) + len(new_segs)] = p < q
+                    key_to_seg[key] = len(segments) + len(new_segs)
+                    new_segs.append(key)
+                    new_bar.append(bi)
+    embed = np.full(len(segments) + len(new_segs), -1, dtype=np.int64)
+    if new_segs:
+        ns = np.array(new_segs, dtype=np.int64)
+        mid = 0.5 * (points[ns[:, 0]] + points[ns[:, 1]])
+        zone_of = np.full(len(ns), -1, dtype=np.int64)
+        for zi, poly in enumerate(polys):
+            inside = shapely.contains_xy(Polygon(poly), mid[:, 0], mid[:, 1])
+            zone_of[inside & (zone_of < 0)] = zi
+        if (zone_of < 0).any():
+            k = int(np.flatnonzero(zone_of < 0)[0])
+            raise SectionError(f"barrier '{barriers[new_bar[k]][0]}': leaves the section near {fmt_xy(mid[k])}")
+        embed[len(segments):] = zone_of
+        segments = np.vstack([segments, ns])
+        outline_mask = np.concatenate([outline_mask, np.zeros(len(ns), bool)])
+        boundary = np.concatenate([boundary, np.full(len(ns), -1, dtype=np.int64)])
+        barrier = np.concatenate([barrier, np.array(new_bar, dtype=np.int64)])
+    fwd = np.zeros(len(segments), bool)
+    for s_, f_ in forward.items():
+        fwd[s_] = f_
     return Graph(points=points, segments=segments, loops=tuple(loops), outline=outline_mask,
-                 boundary=boundary)
+                 boundary=boundary, barrier=barrier, embed=embed, barrier_forward=fwd)

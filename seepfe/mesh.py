@@ -16,11 +16,13 @@ import time
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy.sparse import coo_matrix
+from scipy.sparse.csgraph import connected_components
 
 from .errors import MeshError, SectionError
 from .section import Section
 
-__all__ = ["Mesh", "make_mesh", "estimate_triangles", "split_triangles", "add_midpoints"]
+__all__ = ["Mesh", "make_mesh", "estimate_triangles", "split_triangles", "add_midpoints", "split_barriers"]
 
 #: a coarse gmsh mesh above this many triangles is made by splitting a coarser one instead
 SPLIT_ABOVE = 120_000
@@ -45,6 +47,14 @@ class Mesh:
         Index of the boundary each outline edge belongs to (into ``section.spec.boundaries``); -1 = no-flow.
     order : int
         1 (linear) or 2 (quadratic) triangles.
+    barrier_edges, barrier_edges_other : (K, 2) or (K, 3) int
+        Mesh edges along the barriers (ends, then the P2 midpoint), one row per edge, running the way
+        the barrier polyline is drawn: the node copies on the left of that direction, and the copies
+        of the same points on the right.
+        Nodes on a barrier are doubled (except at a free tip), so the head may jump across it:
+        ``h[barrier_edges] - h[barrier_edges_other]`` is the head difference across the barrier, m.
+    barrier_index : (K,) int
+        Index of the barrier of each barrier edge (into ``section.spec.barriers``).
     """
 
     points: np.ndarray
@@ -55,6 +65,9 @@ class Mesh:
     order: int
     n_vertices: int
     stats: dict = field(default_factory=dict)
+    barrier_edges: np.ndarray = field(default_factory=lambda: np.zeros((0, 2), np.int64))
+    barrier_edges_other: np.ndarray = field(default_factory=lambda: np.zeros((0, 2), np.int64))
+    barrier_index: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
 
     @property
     def n_nodes(self) -> int:
@@ -163,6 +176,118 @@ def add_midpoints(points, tri, bedges):
     return pts, cells, np.concatenate([bedges, bm[:, None]], axis=1)
 
 
+def split_barriers(points, tri, bedges, redges):
+    """Double the nodes along barrier edges so no element couples across a barrier (vectorised).
+
+    Around each node on a barrier, the triangles touching it are grouped into fans that stay connected
+    when crossing any edge except a barrier edge; every fan after the first gets a copy of the node.
+    A free tip (a barrier end inside the section) has one fan and keeps a single node.
+
+    Parameters: points (N, 2); tri (E, 3) counter-clockwise; bedges (B, 2) outline edges; redges (K, 2)
+    barrier edges (node pairs of the mesh before doubling).
+
+    Returns points (N', 2), tri (E, 3), bedges (B, 2) renumbered, and left, right (K, 2): each barrier
+    edge as the node copies on the left of its direction redges[:, 0] -> redges[:, 1] and on its right.
+    """
+    n, E = len(points), len(tri)
+    if len(redges) == 0:
+        return points, tri, bedges, redges.reshape(0, 2), redges.reshape(0, 2)
+    ca, cb = np.array([0, 1, 2]), np.array([1, 2, 0])
+    ea, eb = tri[:, ca].ravel(), tri[:, cb].ravel()                 # local edges, flat index 3 e + l
+    key = np.minimum(ea, eb).astype(np.int64) * n + np.maximum(ea, eb)
+    order = np.argsort(key, kind="stable")
+    ks = key[order]
+    rkey = np.unique(np.minimum(redges[:, 0], redges[:, 1]).astype(np.int64) * n
+                     + np.maximum(redges[:, 0], redges[:, 1]))
+    on_bar = np.zeros(n, bool)
+    on_bar[redges.ravel()] = True
+    inc_mask = on_bar[tri]
+    inc_id = np.full((E, 3), -1, dtype=np.int64)
+    M = int(inc_mask.sum())
+    inc_id[inc_mask] = np.arange(M)
+    # interior edges not on a barrier join the fans of their two end nodes
+    pair = np.flatnonzero(ks[1:] == ks[:-1])
+    pair = pair[~np.isin(ks[pair], rkey)]
+    i, j = order[pair], order[pair + 1]
+    ei, li, ej, lj = i // 3, i % 3, j // 3, j % 3
+    rows, cols = [], []
+    for end in (0, 1):  # the two end nodes of each shared edge
+        node = np.where(end == 0, ea[i], eb[i])
+        ci = np.where(end == 0, ca[li], cb[li])
+        cj = np.where(tri[ej, ca[lj]] == node, ca[lj], cb[lj])
+        keep = on_bar[node]
+        rows.append(inc_id[ei[keep], ci[keep]])
+        cols.append(inc_id[ej[keep], cj[keep]])
+    r, c = np.concatenate(rows), np.concatenate(cols)
+    adj = coo_matrix((np.ones(len(r)), (r, c)), shape=(M, M))
+    ncomp, lab = connected_components(adj, directed=False)
+    comp_node = np.empty(ncomp, dtype=np.int64)
+    comp_node[lab] = tri[inc_mask]
+    corder = np.lexsort((np.arange(ncomp), comp_node))
+    first = np.ones(ncomp, bool)
+    first[1:] = comp_node[corder][1:] != comp_node[corder][:-1]
+    new_id = np.empty(ncomp, dtype=np.int64)
+    new_id[corder[first]] = comp_node[corder[first]]
+    extra = corder[~first]
+    new_id[extra] = n + np.arange(len(extra))
+    pts = np.vstack([points, points[comp_node[extra]]])
+    tri2 = tri.copy()
+    tri2[inc_mask] = new_id[lab]
+
+    def owners(edges, count):
+        k = np.minimum(edges[:, 0], edges[:, 1]).astype(np.int64) * n + np.maximum(edges[:, 0], edges[:, 1])
+        pos = np.searchsorted(ks, k)
+        cnt = np.searchsorted(ks, k, side="right") - pos
+        if np.any(cnt != count):
+            raise MeshError(f"barrier split: {int(np.sum(cnt != count))} edge(s) are not shared by "
+                            f"{count} triangle(s) as expected")
+        return pos
+
+    def renumber(edges, flat):
+        e, l = flat // 3, flat % 3
+        a_at_ca = tri[e, ca[l]] == edges[:, 0]
+        c0 = np.where(a_at_ca, ca[l], cb[l])
+        c1 = np.where(a_at_ca, cb[l], ca[l])
+        return np.stack([tri2[e, c0], tri2[e, c1]], axis=1), a_at_ca
+
+    pos = owners(bedges, 1)
+    bedges2, _ = renumber(bedges, order[pos])
+    pos = owners(redges, 2)
+    s0, fwd0 = renumber(redges, order[pos])
+    s1, _ = renumber(redges, order[pos + 1])
+    # a counter-clockwise triangle lies on the left of its edges as they run corner l -> l + 1
+    left = np.where(fwd0[:, None], s0, s1)
+    right = np.where(fwd0[:, None], s1, s0)
+    return pts, tri2, bedges2, left, right
+
+
+def _check_pieces(section: Section, pts, tri, bedges, btag, left, ltag):
+    """After splitting along barriers: every piece of the mesh must touch a head boundary."""
+    if len(left) == 0:
+        return
+    n = len(pts)
+    r = np.concatenate([tri[:, 0], tri[:, 1], tri[:, 2]])
+    c = np.concatenate([tri[:, 1], tri[:, 2], tri[:, 0]])
+    ncomp, lab = connected_components(coo_matrix((np.ones(len(r)), (r, c)), shape=(n, n)), directed=False)
+    if ncomp == 1:
+        return
+    heads = [i for i, b in enumerate(section.spec.boundaries) if b.kind == "head"]
+    fed = np.zeros(ncomp, bool)
+    fed[lab[bedges[np.isin(btag, heads)].ravel()]] = True
+    used = np.zeros(ncomp, bool)
+    used[lab[tri.ravel()]] = True
+    bad = np.flatnonzero(used & ~fed)
+    if len(bad):
+        piece = bad[0]
+        nodes = np.flatnonzero(lab == piece)
+        where = pts[nodes].mean(axis=0)
+        k = np.flatnonzero(np.isin(left[:, 0], nodes))
+        name = section.spec.barriers[int(ltag[k[0]])].name if len(k) else "?"
+        from .geometry import fmt_xy
+        raise SectionError(f"{section.source}: barrier '{name}' cuts off part of the section (around "
+                           f"{fmt_xy(where)}) from every head boundary; its heads would have no unique solution")
+
+
 def _gmsh_mesh(section: Section, size: float, scale: float):
     """Coarse P1 mesh from gmsh at sizes multiplied by scale. Returns points, tri, zone, bedges, btag."""
     import gmsh
@@ -214,6 +339,9 @@ def _gmsh_mesh(section: Section, size: float, scale: float):
             gmsh.model.mesh.field.setNumber(ft, "DistMax", w + 4.0 * (S - rs))
             thresholds.append(ft)
         geo.synchronize()
+        emb = g.embed if g.embed is not None else np.zeros(0, np.int64)
+        for zi in np.unique(emb[emb >= 0]):
+            gmsh.model.mesh.embed(1, [int(s) + 1 for s in np.flatnonzero(emb == zi)], 2, int(zi) + 1)
         if thresholds:
             fm = gmsh.model.mesh.field.add("Min")
             gmsh.model.mesh.field.setNumbers(fm, "FieldsList", thresholds)
@@ -243,23 +371,36 @@ def _gmsh_mesh(section: Section, size: float, scale: float):
             e = np.asarray(en[0]).reshape(-1, 2)
             be_l.append(e)
             bt_l.append(np.full(len(e), g.boundary[s]))
+        bar = g.barrier if g.barrier is not None else np.zeros(0, np.int64)
+        re_l, rt_l, rd_l = [np.zeros((0, 2), np.uint64)], [np.zeros(0, np.int64)], [np.zeros((0, 2))]
+        for s in np.flatnonzero(bar >= 0):
+            et, _, en = gmsh.model.mesh.getElements(1, int(s) + 1)
+            e = np.asarray(en[0]).reshape(-1, 2)
+            re_l.append(e)
+            rt_l.append(np.full(len(e), bar[s]))
+            a, b = g.points[g.segments[s]]
+            rd_l.append(np.tile(b - a if g.barrier_forward[s] else a - b, (len(e), 1)))
     finally:
         gmsh.finalize()
     tri = np.searchsorted(tags, np.concatenate(tri_l))
     bedges = np.searchsorted(tags, np.concatenate(be_l))
+    redges = np.searchsorted(tags, np.concatenate(re_l))
     zone = np.concatenate(zone_l)
     # keep only nodes used by triangles (drops the free refinement points)
     used = np.unique(tri)
     remap = np.full(len(tags), -1)
     remap[used] = np.arange(len(used))
     pts = xyz[used]
-    tri, bedges = remap[tri], remap[bedges]
+    tri, bedges, redges = remap[tri], remap[bedges], remap[redges]
     # counter-clockwise
     p = pts[tri]
     a2 = ((p[:, 1, 0] - p[:, 0, 0]) * (p[:, 2, 1] - p[:, 0, 1])
           - (p[:, 2, 0] - p[:, 0, 0]) * (p[:, 1, 1] - p[:, 0, 1]))
     tri[a2 < 0] = tri[a2 < 0][:, [0, 2, 1]]
-    return pts, tri, zone, bedges, np.concatenate(bt_l)
+    # barrier edges run the way the barrier polyline was drawn
+    back = np.einsum("ij,ij->i", pts[redges[:, 1]] - pts[redges[:, 0]], np.concatenate(rd_l)) < 0
+    redges[back] = redges[back][:, ::-1]
+    return pts, tri, zone, bedges, np.concatenate(bt_l), redges, np.concatenate(rt_l)
 
 
 def make_mesh(section: Section, order: int | None = None, size: float | None = None,
@@ -299,8 +440,15 @@ def make_mesh(section: Section, order: int | None = None, size: float | None = N
         while est / 4**split > SPLIT_ABOVE and split < 3:
             split += 1
     t0 = time.perf_counter()
-    pts, tri, zone, be, bt = _gmsh_mesh(section, S, 2.0**split)
+    pts, tri, zone, be, bt, re, rt = _gmsh_mesh(section, S, 2.0**split)
     t1 = time.perf_counter()
+    if len(re):
+        # barriers: double their nodes now, so splitting and P2 midpoints follow on each side;
+        # their edges ride along with the outline edges, tagged -2 - 2 i (left) and -3 - 2 i (right)
+        pts, tri, be, left, right = split_barriers(pts, tri, be, re)
+        _check_pieces(section, pts, tri, be, bt, left, rt)
+        be = np.vstack([be, left, right])
+        bt = np.concatenate([bt, -2 - 2 * rt, -3 - 2 * rt])
     for _ in range(split):
         pts, tri, zone, be, bt = split_triangles(pts, tri, zone, be, bt)
     min_angle, worst_q = mesh_quality(pts, tri)
@@ -309,10 +457,15 @@ def make_mesh(section: Section, order: int | None = None, size: float | None = N
         pts, cells, be = add_midpoints(pts, tri, be)
     else:
         cells = tri
+    code = -2 - bt
+    is_l, is_r = (code >= 0) & (code % 2 == 0), (code >= 0) & (code % 2 == 1)
+    bar_l, bar_r, bar_i = be[is_l], be[is_r], code[is_l] // 2
+    be, bt = be[bt >= -1], bt[bt >= -1]
     t2 = time.perf_counter()
     stats = {"nodes": int(len(pts)), "vertices": int(nv), "elements": int(len(cells)), "order": int(order),
              "size_m": float(S), "splits": int(split), "min_angle_deg": round(min_angle, 3),
              "worst_quality": round(worst_q, 4), "gmsh_s": round(t1 - t0, 4), "mesh_s": round(t2 - t0, 4)}
     return Mesh(points=pts, cells=cells.astype(np.int64), zone=zone.astype(np.int64),
                 edges=be.astype(np.int64), edge_boundary=bt.astype(np.int64), order=order,
-                n_vertices=nv, stats=stats)
+                n_vertices=nv, stats=stats, barrier_edges=bar_l.astype(np.int64),
+                barrier_edges_other=bar_r.astype(np.int64), barrier_index=bar_i.astype(np.int64))

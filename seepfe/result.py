@@ -130,7 +130,12 @@ class Result:
     def _finder(self):
         from matplotlib.tri import Triangulation
         p = self.mesh.points[: self.mesh.n_vertices]
-        tri = Triangulation(p[:, 0], p[:, 1], self.mesh.triangles)
+        t = self.mesh.triangles
+        if len(getattr(self.mesh, "barrier_edges", ())):
+            # nodes doubled along barriers: one node per place, or the point finder refuses the mesh
+            p, inv = np.unique(p, axis=0, return_inverse=True)
+            t = inv.reshape(-1)[t]
+        tri = Triangulation(p[:, 0], p[:, 1], t)
         return tri.get_trifinder()
 
     def locate(self, points):

@@ -14,7 +14,7 @@ from typing import Annotated, Literal, Optional
 
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validator
 
-__all__ = ["MaterialSpec", "ZoneSpec", "BoundarySpec", "RefineSpec", "MeshSpec", "WaterSpec",
+__all__ = ["MaterialSpec", "ZoneSpec", "BoundarySpec", "BarrierSpec", "RefineSpec", "MeshSpec", "WaterSpec",
            "SectionSpec"]
 
 
@@ -125,6 +125,19 @@ class BoundarySpec(BaseModel):
         return "drain" if self.drain else "seepage_face"
 
 
+class BarrierSpec(BaseModel):
+    """A zero-thickness impervious line inside the section (sheet pile, thin cutoff wall).
+
+    The mesh is split along it: no water crosses it, and the head may jump across it. It may start
+    on the outline (a sheet pile driven from the ground surface) or lie fully inside the section.
+    """
+
+    model_config = _CFG
+    name: Annotated[str, Field(min_length=1)]
+    polyline: Annotated[list[Point], Field(min_length=2)] = Field(
+        description="vertices [[x, y], ...] in m along the barrier")
+
+
 class RefineSpec(BaseModel):
     """A smaller element size near a polyline or a point."""
 
@@ -229,6 +242,7 @@ class SectionSpec(BaseModel):
     materials: Annotated[dict[str, MaterialSpec], Field(min_length=1)]
     zones: Annotated[list[ZoneSpec], Field(min_length=1)]
     boundaries: list[BoundarySpec] = Field(default_factory=list)
+    barriers: list[BarrierSpec] = Field(default_factory=list)
     mesh: MeshSpec = Field(default_factory=MeshSpec)
     water: WaterSpec = Field(default_factory=WaterSpec)
     solver: SolverSpec = Field(default_factory=SolverSpec)

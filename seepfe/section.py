@@ -156,9 +156,9 @@ def _label(data: Any, loc: tuple) -> str:
     node = data
     for i, key in enumerate(loc):
         coll = loc[i - 1] if i else None
-        if isinstance(key, int) and coll in ("zones", "boundaries") and isinstance(node, list) \
+        if isinstance(key, int) and coll in ("zones", "boundaries", "barriers") and isinstance(node, list) \
                 and key < len(node) and isinstance(node[key], dict) and isinstance(node[key].get("name"), str):
-            kind = "zone" if coll == "zones" else "boundary"
+            kind = {"zones": "zone", "boundaries": "boundary", "barriers": "barrier"}[coll]
             if parts and parts[-1] == coll:
                 parts.pop()
             parts.append(f"{kind} '{node[key]['name']}'")
@@ -354,6 +354,12 @@ def _build(spec: SectionSpec, data: dict, label: str) -> Section:
         if len(bl) < 2:
             raise SectionError(f"boundary '{b.name}': polyline has zero length")
         blines.append(bl)
-    graph = geometry.build_graph(names, polys, outline, bnames, blines, tol)
+    rnames = [r.name for r in spec.barriers]
+    for n in rnames:
+        if rnames.count(n) > 1:
+            raise SectionError(f"barrier '{n}' is defined {rnames.count(n)} times; barrier names must be unique")
+    rlines = geometry.check_barriers(rnames, [r.polyline for r in spec.barriers], outline, tol)
+    graph = geometry.build_graph(names, polys, outline, bnames, blines, tol,
+                                 barriers=tuple(zip(rnames, rlines)))
     return Section(spec=spec, source=label, data=data, input_hash=_hash(data), polygons=tuple(polys),
                    outline=outline, extent=extent, tol=tol, graph=graph)
