@@ -158,7 +158,9 @@ def _who(raw: list, i: int) -> str:
 
 
 def _format(e: ValidationError, raw: list) -> str:
-    err = e.errors(include_url=False)[0]
+    errs = e.errors(include_url=False)
+    # a misspelt key also shows as a missing one: report the misspelling
+    err = next((x for x in errs if x["type"] == "extra_forbidden"), errs[0])
     loc = list(err["loc"])
     i = loc.pop(0) if loc and isinstance(loc[0], int) else 0
     if loc and loc[0] in REMEDY_TYPES:
@@ -416,6 +418,9 @@ def _cutoff(r: CutoffWall, spec, geo: _Geo, data: dict, who: str, refine: list) 
         if "barriers" not in SectionSpec.model_fields:
             raise SectionError(f"{who}: a zero-thickness sheet pile needs internal no-flow lines "
                                "('barriers'), which this version does not have; give a thickness > 0")
+        if bottom <= base + tol:
+            raise SectionError(f"{who}: a sheet pile (thickness 0) down to the base of the section cuts it in "
+                               "two and stops all flow; end it above the base or give the wall a thickness and k")
         if r.material is not None or r.k is not None:
             raise SectionError(f"{who}: a sheet pile (thickness 0) is impervious; leave out 'material' and 'k'")
         data.setdefault("barriers", []).append({"name": _unique(name, [b.get("name") for b in data.get("barriers", [])]),
