@@ -312,6 +312,15 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
     if not has.any():
         notes.append("no top stratum found under this boundary (no layer markedly less pervious than the one "
                      f"below it, contrast {c.contrast:g}): no uplift check")
+    if len(gradient) and np.isfinite(gradient).any():
+        k = int(np.nanargmax(gradient))
+        local = 3.0 * float(L[ee[k]])
+        end = 0 if (s[k] - s[0]) <= (s[-1] - s[k]) else -1
+        if abs(s[k] - s[end]) <= local and _interior_angle(sec, xy[end]) > 0.55 * math.pi:
+            notes.append(f"the largest surface gradient ({gradient[k]:.3g} at x {x[k]:.4g} m) lies at an end of "
+                         f"'{name}', where the boundary condition changes; the exact gradient there is singular "
+                         "and this value grows as the mesh is refined: judge by the gradient across the top "
+                         "stratum or by the values a little away from the end")
     if np.isnan(weight[has]).any():
         notes.append("a top-stratum layer has no unit weight: uplift factor of safety not computed there")
     tsm = (f"to the depth given ({depth:g} m)" if depth is not None else
@@ -326,6 +335,26 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
                       head_base=hb, h_excess=np.where(has, h_excess, np.nan), i_critical=ic, fs_heave=fs_heave,
                       fs_uplift=fs_uplift, fs=fs, passes=passes, criteria=crit, toe_x=toe_x, toe_source=toe_src,
                       top_stratum_method=tsm, notes=notes)
+
+
+def _interior_angle(sec, p) -> float:
+    """Interior angle of the outline at point p (radians); pi where p is not a vertex of the outline.
+
+    Where a seepage face meets a no-flow boundary at an interior angle theta, the gradient behaves
+    like r^(pi / (2 theta) - 1): singular for theta > pi / 2 (e.g. a levee toe on level ground),
+    finite at a right-angled corner (the face of a cutoff).
+    """
+    ring = np.asarray(sec.outline.exterior.coords)[:-1]
+    if np.sum(ring[:, 0] * np.roll(ring[:, 1], -1) - np.roll(ring[:, 0], -1) * ring[:, 1]) < 0:
+        ring = ring[::-1]                  # counter-clockwise: the section lies left of each edge
+    d = np.linalg.norm(ring - p, axis=1)
+    i = int(np.argmin(d))
+    if d[i] > 10 * sec.tol:
+        return math.pi
+    a, v, b = ring[i - 1], ring[i], ring[(i + 1) % len(ring)]
+    u, w = b - v, a - v
+    ang = math.atan2(u[0] * w[1] - u[1] * w[0], u @ w)
+    return ang % (2 * math.pi)
 
 
 def _unknown(name, names):

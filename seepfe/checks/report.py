@@ -309,6 +309,9 @@ def _blanket(result, ex: ExitChecks, up, H, land_level) -> dict:
             return _na("cannot find the riverside toe (set checks.riverside_toe_x)")
         j = np.flatnonzero(low)
         xr = float(xs[j[np.argmin(np.abs(xs[j] - xc))]])
+        near = np.abs(ring[:, 0] - xr) <= 2.5 * (xs[1] - xs[0])
+        if near.any():                       # snap to the outline vertex the grid found
+            xr = float(ring[near, 0][np.argmin(np.abs(ring[near, 0] - xr))])
         src = "inferred: where the top surface comes down to the landside toe level"
     L2 = abs(xt - xr)
     yr = float(_top_envelope(sec, np.array([xr - sgn * eps]))[0])
