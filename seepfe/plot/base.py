@@ -175,9 +175,19 @@ def draw_zones(ax, section, lighten: float = 0.55, zorder: float = 0):
 
 
 def draw_zone_edges(ax, section, colour=INK, lw: float = 0.6, zorder: float = 3):
-    from matplotlib.collections import PolyCollection
+    """Zone outlines, and any zero-thickness barriers (section key ``barriers``) as heavy dark lines."""
+    from matplotlib.collections import LineCollection, PolyCollection
     ax.add_collection(PolyCollection([p for p in section.polygons], facecolors="none", edgecolors=colour,
                                      linewidths=lw, zorder=zorder))
+    bars = getattr(section.spec, "barriers", None) or []
+    if bars:
+        ax.add_collection(LineCollection([np.asarray(b.polyline, float) for b in bars], colors=INK,
+                                         linewidths=2.2, zorder=zorder + 3.5, capstyle="butt"))
+        for b in bars:
+            p = np.asarray(b.polyline, float)
+            k = int(np.argmin(p[:, 1]))
+            ax.annotate(b.name, p[k], xytext=(4, -4), textcoords="offset points", fontsize=6.5, color=INK,
+                        ha="left", va="top", zorder=zorder + 4, annotation_clip=True)
 
 
 def material_handles(section, colours: dict) -> list:

@@ -171,6 +171,7 @@ def field_figure(result, quantity: str = "total_head", window=None, title: str |
         fr.legend(bh + handles, ncol=3)
     fr.fig.seepfe_levels = lv
     fr.fig.seepfe_range = (vmin, vmax)
+    fr.fig.seepfe_contours = {"lines": cs} if len(lv) else {}
     return fr.fig
 
 
@@ -215,7 +216,8 @@ def flow_net_figure(result, window=None, title: str | None = None, n_drops: int 
     """A flow net: equipotentials at Nd equal head drops and flow lines at equal flow from the
     stream function (:mod:`seepfe.flownet`), with Nf, Nd and the check q = k H Nf / Nd.
 
-    The :class:`seepfe.flownet.FlowNet` drawn is returned on the figure as ``fig.seepfe_flow_net``.
+    The :class:`seepfe.flownet.FlowNet` drawn is returned on the figure as ``fig.seepfe_flow_net``, the
+    contour sets as ``fig.seepfe_contours`` ({"equipotentials": ..., "flow_lines": ...}).
     """
     sec = result.section
     net = net or flow_net(result, n_drops=n_drops)
@@ -229,11 +231,12 @@ def flow_net_figure(result, window=None, title: str | None = None, n_drops: int 
         fl = net.flow_line_levels
         from matplotlib.lines import Line2D
         c_eq, c_fl = OKABE_ITO["vermillion"], OKABE_ITO["blue"]
+        drawn = {}
         if len(eq):
-            ax.tricontour(tri, result.h, levels=eq, colors=c_eq, linewidths=0.7, linestyles=[(0, (5, 2))],
-                          zorder=4)
+            drawn["equipotentials"] = ax.tricontour(tri, result.h, levels=eq, colors=c_eq, linewidths=0.7,
+                                                    linestyles=[(0, (5, 2))], zorder=4)
         if len(fl):
-            ax.tricontour(tri, net.psi, levels=fl, colors=c_fl, linewidths=0.9, zorder=5)
+            drawn["flow_lines"] = ax.tricontour(tri, net.psi, levels=fl, colors=c_fl, linewidths=0.9, zorder=5)
         base.draw_zone_edges(ax, sec, colour=MUTED, lw=0.6, zorder=3)
         bh = base.draw_boundaries(ax, sec, window=win)
         handles = [Line2D([], [], color=c_fl, lw=0.9, label=f"flow line (flow {base.fmt_sci(net.dpsi, 2)} "
@@ -257,6 +260,7 @@ def flow_net_figure(result, window=None, title: str | None = None, n_drops: int 
                    f"solver: {base.fmt_sci(net.q_solver, 3)} m³/s per m")
         fr.text(txt, fontsize=7.5, color=INK, linespacing=1.5)
     fr.fig.seepfe_flow_net = net
+    fr.fig.seepfe_contours = drawn
     return fr.fig
 
 

@@ -38,7 +38,12 @@ class FigureItem:
 
 
 def _profile_boundaries(result) -> list[str]:
-    return [b.name for b in result.section.spec.boundaries if b.kind in ("seepage_face", "drain")]
+    """The boundaries checked by default (seepfe.checks), else every seepage face and drain."""
+    try:
+        from ..checks.exit import default_boundaries
+        return list(default_boundaries(result.section))
+    except ImportError:
+        return [b.name for b in result.section.spec.boundaries if b.kind in ("seepage_face", "drain")]
 
 
 def figure_set(result, show_mesh: bool = False, arrows: bool = False, quantity: str = "pore_pressure",
@@ -48,7 +53,7 @@ def figure_set(result, show_mesh: bool = False, arrows: bool = False, quantity: 
     section, mesh (if asked), total head, ``quantity`` (pressure head or pore pressure), flow net,
     velocity arrows (if asked),
     each again on a closer window when the section is long and flat, and one exit-gradient profile
-    per seepage face or drain when the result offers ``exit_gradients``.
+    per checked boundary (``result.exit_gradients``; by default every seepage face).
     """
     from ..flownet import flow_net
     from .figures import field_figure, flow_net_figure, section_figure, velocity_figure
