@@ -1,0 +1,91 @@
+"""``seepfe sweep SECTION SWEEP --out DIR``: many cases, target searches and fragility of one section.
+
+Runs on all usable cores by default (``--workers N``), or on a Dask cluster (``--scheduler
+tcp://host:port``).  Finished cases are cached under ``DIR/cases/`` so an interrupted sweep resumes
+where it stopped; the table, plots and summaries go to ``DIR/results/`` all at once at the end.
+"""
+
+from __future__ import annotations
+
+import math
+
+from ..result import CAUTION
+from .common import table
+
+
+def register(sub) -> None:
+    s = sub.add_parser("sweep", help="run a sweep file on a section: table of cases, target searches, "
+                                     "fragility (resumable, parallel)")
+    s.add_argument("section", help="section file (JSON)")
+    s.add_argument("sweep", help="sweep file (JSON), see docs/sweeps.md")
+    s.add_argument("--out", required=True, help="sweep folder: cases/ (cache) and results/ (final files)")
+    s.add_argument("--workers", type=int, default=None, help="local worker processes (default: all cores; "
+                   "1 = no pool)")
+    s.add_argument("--scheduler", default=None, help="Dask scheduler address, e.g. tcp://10.0.0.5:8786 "
+                   "(workers need seepfe installed)")
+    s.add_argument("--max-solves", type=int, default=None,
+                   help="solve at most this many new cases now; run again to continue")
+    s.add_argument("--order", type=int, choices=(1, 2), default=None, help="element order for every case")
+    s.add_argument("--size", type=float, default=None, help="element size for every case, m")
+    s.add_argument("--no-plots", action="store_true", help="write the tables only")
+    s.set_defaults(func=run)
+
+
+def run(args) -> int:
+    from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn,
+                               TimeRemainingColumn)
+
+    from ..errors import SeepfeError
+    from ..sweep import run_sweep
+    if args.workers is not None and args.workers < 1:
+        raise SeepfeError("--workers must be at least 1")
+    solve = {k: v for k, v in (("order", args.order), ("size", args.size)) if v is not None}
+    tasks: dict[str, int] = {}
+    with Progress(TextColumn("{task.description}"), BarColumn(bar_width=24), MofNCompleteColumn(),
+                  TimeElapsedColumn(), TextColumn("left"), TimeRemainingColumn(), transient=False) as bar:
+        def progress(stage, done, total, cached):
+            if stage not in tasks:
+                # cached cases are counted as done before the clock starts, so the estimate is honest
+                tasks[stage] = bar.add_task(stage[:28], total=total, completed=done)
+            else:
+                bar.update(tasks[stage], completed=done, total=total)
+        rep = run_sweep(args.section, args.sweep, out=args.out, workers=args.workers, scheduler=args.scheduler,
+                        progress=progress, max_solves=args.max_solves, solve=solve or None,
+                        plots=not args.no_plots)
+    print(f"cases: {rep.cases} ({rep.solved} solved now, {rep.cached} from the cache) on {rep.backend}, "
+          f"{rep.wall_s:.1f} s")
+    if not rep.complete:
+        print(f"stopped after {rep.solved} new solves (--max-solves); run the same command again to finish. "
+              f"Finished cases are kept in {args.out}/cases/.")
+        return 4
+    if rep.table:
+        bad = [r for r in rep.table if r["status"] != "ok"]
+        fails = [r for r in rep.table if r["fs_check"] == "fail"]
+        fs = [r["fs_min"] for r in rep.table if not math.isnan(r["fs_min"])]
+        line = f"table: {len(rep.table)} rows"
+        if fs:
+            line += f"; lowest FS {min(fs):.3g}, highest {max(fs):.3g}; {len(fails)} below the required {rep.fs_required:g}"
+        print(line)
+        if bad:
+            print(f"  {len(bad)} case(s) not ok, first: case {bad[0]['case']}: {bad[0]['status']}")
+    if rep.targets:
+        print(table("targets", ["name", "condition", "result", "tolerance", "solves", "status"],
+                    [[t["name"], t["condition"],
+                      "-" if math.isnan(t["value"]) else f"{t['parameter']} = {t['value']:.4g} {t['unit']}",
+                      f"{t['tolerance']:g} {t['unit']}", t["solves"], t["status"]] for t in rep.targets]))
+        for t in rep.targets:
+            for w in t["warnings"]:
+                print(f"  warning ({t['name']}): {w}")
+    fr = rep.fragility
+    if fr is not None:
+        print(table(f"fragility ({fr['samples']} {fr['sampling'].replace('_', ' ')} realisations, "
+                    f"{int(round(fr['confidence'] * 100))}% {fr['interval'].replace('_', '-')} band)",
+                    [f"stage ({fr['stage_unit']})", "P(FS < 1)", f"P(FS < {fr['criterion']:g})"],
+                    [[f"{s:g}", f"{p['p_fs_below_1']:.2f} [{p['p_fs_below_1_low']:.2f}, {p['p_fs_below_1_high']:.2f}]",
+                      f"{p['p_fs_below_criterion']:.2f} [{p['p_fs_below_criterion_low']:.2f}, "
+                      f"{p['p_fs_below_criterion_high']:.2f}]"] for s, p in zip(fr["stages"], fr["probabilities"])]))
+    if rep.fs_method:
+        print(f"factor of safety: {rep.fs_method}")
+    print(f"written: {rep.results_dir}/ ({', '.join(f for f in rep.files if not f.endswith('.svg'))}; SVG beside each PNG)")
+    print(f"CAUTION: {CAUTION}")
+    return 0

@@ -1,0 +1,342 @@
+"""``run_sweep``: cases, target searches and fragility of one section, written to one folder.
+
+Folder layout (``out``)::
+
+    out/.seepfe-sweep      marker: this folder belongs to a sweep
+    out/cases/<hash>.json  one finished case each (the resumable cache; filled while the sweep runs)
+    out/results/           the final files, written all at once when everything is solved:
+        table.csv, sweep.json, vs_<key>.png|svg, profiles_<boundary>.png|svg,
+        targets.csv, target_<name>.png|svg, fragility.csv, fragility_samples.csv, fragility.png|svg
+
+``results/`` is replaced whole on success (never half-written); ``cases/`` is the one exception by
+design: it holds whatever finished, so an interrupted sweep loses nothing and a rerun solves only the
+cases whose resolved input changed.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable, Optional
+
+import numpy as np
+from shapely.geometry import Point
+
+from ..errors import SeepfeError
+from ..result import CAUTION
+from ..section import load_section
+from .case import case_hash, from_json_float
+from .fragility import material_overrides, probabilities, sample_conductivities
+from .runner import Runner
+from .spec import SweepSpec, column_of, expand_cases, load_sweep
+from .target import Stopped, quantity_of, search
+from .values import infer_unit, unit_suffix, with_values
+
+__all__ = ["run_sweep", "SweepReport", "MARKER"]
+
+MARKER = ".seepfe-sweep"
+GOVERNING = ["exit_gradient_max", "exit_gradient_x_m", "exit_gradient_boundary", "fs_min", "fs_min_x_m",
+             "fs_min_boundary"]
+
+
+@dataclass
+class SweepReport:
+    """What a sweep produced.  ``complete`` is False when a solve budget stopped it early."""
+
+    complete: bool
+    columns: list = field(default_factory=list)
+    table: list = field(default_factory=list)
+    targets: list = field(default_factory=list)
+    fragility: Optional[dict] = None
+    solved: int = 0
+    cached: int = 0
+    cases: int = 0
+    backend: str = ""
+    fs_method: str = ""
+    fs_required: float = math.nan
+    results_dir: Optional[Path] = None
+    files: list = field(default_factory=list)
+    wall_s: float = 0.0
+    warnings: list = field(default_factory=list)
+
+
+def _prepare_out(out: Path) -> None:
+    if out.exists():
+        if not out.is_dir():
+            raise SeepfeError(f"{out}: exists and is not a folder")
+        if any(out.iterdir()) and not (out / MARKER).exists():
+            raise SeepfeError(f"{out}: folder exists, is not empty and is not a seepfe sweep folder; "
+                              "choose another --out")
+    out.mkdir(parents=True, exist_ok=True)
+    (out / MARKER).write_text("seepfe sweep folder: cases/ is the resumable cache, results/ the final files\n")
+
+
+def _row(index, varied, params: dict, columns: dict, rec: dict, h: str, fs_required: float,
+         flow_names: list, point_names: list) -> dict:
+    r = {"case": index, "varied": varied}
+    for k, col in columns.items():
+        r[col] = float(params.get(k, math.nan))
+    r["status"] = rec.get("status", "")
+    fl = rec.get("flows_m3_s_per_m", {})
+    for b in flow_names:
+        r[f"flow_{b}_m3_s_per_m"] = float(fl.get(b, math.nan))
+    hd = rec.get("heads_m", {})
+    for p in point_names:
+        r[f"head_{p}_m"] = from_json_float(hd.get(p))
+    g = rec.get("governing", {})
+    for k in GOVERNING:
+        v = g.get(k)
+        r[k] = v if k.endswith("_boundary") else from_json_float(v)
+    fs = r.get("fs_min", math.nan)
+    r["fs_required"] = fs_required
+    r["fs_check"] = "n/a" if (fs is None or math.isnan(fs)) else ("pass" if fs >= fs_required else "fail")
+    r["nodes"] = rec.get("nodes", 0)
+    r["hash"] = h[:16]
+    return r
+
+
+def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, scheduler=None,
+              progress: Optional[Callable[[str, int, int, int], None]] = None,
+              max_solves: Optional[int] = None, solve: Optional[dict] = None, plots: bool = True,
+              runner: Optional[Runner] = None) -> SweepReport:
+    """Run the sweep file ``sweep`` on the section ``section``.
+
+    Parameters
+    ----------
+    section : path or dict of the section file.
+    sweep : path or dict of the sweep file (see ``docs/sweeps.md``).
+    out : folder for the case cache and the results (None: keep nothing on disk).
+    workers : local processes (default: all usable cores; 1 = in this process).
+    scheduler : Dask scheduler address ``tcp://host:port`` or a ``distributed.Client``.
+    progress : ``progress(stage, done, total, cached)``; stage is "cases", "target <name>" or "fragility".
+    max_solves : solve at most this many new cases, then stop (``complete`` is False; run again to go on).
+    solve : solve options overriding the sweep file's ``solve`` block (order, size, linear).
+    """
+    t0 = time.perf_counter()
+    sec = load_section(section)
+    data, label = sec.data, sec.source
+    spec, slabel = load_sweep(sweep)
+    sopts = {k: v for k, v in {**spec.solve.model_dump(), **(solve or {})}.items() if v is not None}
+    if spec.exit is not None:
+        for nm in spec.exit:
+            if nm not in sec.boundary_names:
+                raise SeepfeError(f"{slabel}: exit: no boundary named '{nm}' in {label} "
+                                  f"(known: {', '.join(sec.boundary_names)})")
+    points = {k: [float(v[0]), float(v[1])] for k, v in spec.points.items()}
+    for k, p in points.items():
+        if not sec.outline.buffer(sec.tol * 10).contains(Point(p)):
+            raise SeepfeError(f"{slabel}: points.{k}: ({p[0]:g}, {p[1]:g}) m is outside the section")
+    fs_required = spec.criterion.fs
+    out = Path(out) if out is not None else None
+    if out is not None:
+        _prepare_out(out)
+    own = runner is None
+    if own:
+        runner = Runner(cache_dir=(out / "cases") if out is not None else None, workers=workers,
+                        scheduler=scheduler, max_solves=max_solves)
+    rep = SweepReport(complete=True, backend=runner.backend, fs_required=fs_required)
+
+    def payload(section_dict: dict) -> dict:
+        return {"section": section_dict, "solve": sopts, "points": points, "exit": spec.exit}
+
+    offsets: dict[str, tuple[int, int]] = {}
+
+    def run(stage: str, payloads: list[dict]) -> list:
+        od, on = offsets.get(stage, (0, 0))
+        seen = {}
+        cb = None
+        if progress:
+            def cb(d, n, c):
+                seen["n"] = n
+                progress(stage, od + d, on + n, c)
+        recs = runner.run(payloads, cb)
+        offsets[stage] = (od + seen.get("n", 0), on + seen.get("n", 0))
+        rep.solved += runner.solved
+        rep.cached += runner.cached
+        rep.cases += len(set(case_hash(p) for p in payloads))
+        return recs
+
+    methods = set()
+    try:
+        # ------------------------------------------------------------ table
+        table_rows, columns, flow_names, point_names = [], {}, [], list(points)
+        profiles: dict[str, list] = {}
+        if spec.vary:
+            cases, columns = expand_cases(spec, data, slabel)
+            pls = [payload(c.section) for c in cases]
+            recs = run("cases", pls)
+            if any(r is None for r in recs):
+                raise Stopped()
+            for r in recs:
+                for b in r.get("flows_m3_s_per_m", {}):
+                    if b not in flow_names:
+                        flow_names.append(b)
+            for c, p, r in zip(cases, pls, recs):
+                if r.get("fs_method"):
+                    methods.add(r["fs_method"])
+                table_rows.append(_row(c.index, c.varied, c.params, columns, r, case_hash(p), fs_required,
+                                       flow_names, point_names))
+                for b, prof in (r.get("exit") or {}).items():
+                    if c.varied == "grid":
+                        profiles.setdefault((b, ""), []).append((float(c.index), prof))
+                    else:
+                        profiles.setdefault((b, c.varied), []).append((c.params[c.varied], prof))
+        rep.columns = (["case", "varied"] + list(columns.values()) + ["status"]
+                       + [f"flow_{b}_m3_s_per_m" for b in flow_names] + [f"head_{p}_m" for p in point_names]
+                       + GOVERNING + ["fs_required", "fs_check", "nodes", "hash"]) if spec.vary else []
+        rep.table = table_rows
+
+        # ------------------------------------------------------------ targets
+        width = runner.workers if scheduler is None and runner.scheduler is None else max(2, workers or 2)
+        for t in spec.targets:
+            tname = t.name or t.parameter
+            unit = t.unit or infer_unit(data, t.parameter)
+            if unit is None:
+                raise SeepfeError(f"{slabel}: target '{tname}': cannot tell the unit of '{t.parameter}'; "
+                                  "add \"unit\"")
+
+            def evaluate(xs, t=t, tname=tname):
+                pls = []
+                for x in xs:
+                    try:
+                        pls.append(payload(with_values(data, {**spec.fixed, **t.fixed, t.parameter: float(x)}, label)))
+                    except SeepfeError as e:
+                        raise SeepfeError(f"{slabel}: target '{tname}': {e}") from None
+                recs = run(f"target {tname}", pls)
+                for r in recs:
+                    if r is not None and r.get("fs_method"):
+                        methods.add(r["fs_method"])
+                return recs
+
+            res = search(t, evaluate, width, fs_required)
+            res["unit"] = unit
+            rep.targets.append(res)
+
+        # ------------------------------------------------------------ fragility
+        if spec.fragility is not None:
+            fr = spec.fragility
+            crit = fr.criterion if fr.criterion is not None else fs_required
+            mats, K = sample_conductivities(fr, data, slabel)
+            stages = fr.stages.array()
+            sunit = fr.stages.unit or infer_unit(data, fr.stage)
+            if sunit is None:
+                raise SeepfeError(f"{slabel}: fragility.stages: cannot tell the unit of '{fr.stage}'; add \"unit\"")
+            pls = []
+            for s in range(len(K)):
+                kov = {}
+                for j, m in enumerate(mats):
+                    kov.update(material_overrides(data, m, K[s, j]))
+                for st in stages:
+                    try:
+                        d = with_values(data, {**spec.fixed, **fr.fixed, **kov, fr.stage: float(st)}, label)
+                    except SeepfeError as e:
+                        raise SeepfeError(f"{slabel}: fragility: {e}") from None
+                    pls.append(payload(d))
+            recs = run("fragility", pls)
+            if any(r is None for r in recs):
+                raise Stopped()
+            Q = np.full((len(K), len(stages)), math.nan)
+            errors = 0
+            for idx, r in enumerate(recs):
+                if r.get("fs_method"):
+                    methods.add(r["fs_method"])
+                if r.get("status", "").startswith("error"):
+                    errors += 1
+                    continue
+                Q[idx // len(stages), idx % len(stages)] = quantity_of(r, fr.quantity)
+            probs = probabilities(Q, crit, fr.confidence, fr.interval)
+            rep.fragility = {"stage": fr.stage, "stage_unit": sunit, "stages": stages.tolist(),
+                             "materials": mats, "k_m_s": K.tolist(), "quantity": fr.quantity, "values": Q,
+                             "criterion": crit, "probabilities": probs, "samples": fr.samples,
+                             "sampling": fr.sampling, "seed": fr.seed, "interval": fr.interval,
+                             "confidence": fr.confidence, "failed_cases": errors}
+    except Stopped:
+        rep.complete = False
+    finally:
+        if own:
+            runner.close()
+    rep.fs_method = "; ".join(sorted(methods))
+    rep.wall_s = time.perf_counter() - t0
+    if rep.complete and out is not None:
+        _write(rep, out, spec, slabel, sec, sopts, points, columns if spec.vary else {}, profiles, plots)
+    return rep
+
+
+def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts, points, columns, profiles,
+           plots: bool) -> None:
+    from .. import __version__
+    from ..output import atomic_dir, write_json
+    from . import report
+    title = spec.title or sec.title or sec.source
+    files: list[str] = []
+    with atomic_dir(out / "results") as tmp:
+        if rep.table:
+            report.write_table(tmp / "table.csv", rep.columns, rep.table)
+            files.append("table.csv")
+            if plots:
+                results = [c for c in rep.columns if c.startswith(("flow_", "head_"))]
+                if any(not math.isnan(r["exit_gradient_max"]) for r in rep.table):
+                    results += ["exit_gradient_max", "fs_min"]
+                for key, col in columns.items():
+                    rows = [r for r in rep.table if r["varied"] in (key, "grid")]
+                    others = [c for k, c in columns.items() if k != key] if spec.mode == "grid" else []
+                    files += report.plot_vs_parameter(tmp, key, col, rows, results, others, rep.fs_required, title)
+                for (b, key), cs in profiles.items():
+                    if key:
+                        files += report.plot_profiles(tmp, b, cs, rep.fs_required, title, report._label(columns[key]),
+                                                      f"_{report._safe(key)}", key.endswith((".k", ".kx", ".ky")))
+                    else:
+                        files += report.plot_profiles(tmp, b, cs, rep.fs_required, title, "case (table order)", "")
+        if rep.targets:
+            tcols = ["name", "parameter", "unit", "find", "condition", "status", "value", "other_end",
+                     "tolerance", "solves", "warnings"]
+            trows = [{**t, "other_end": t.get("other_end", math.nan), "warnings": " | ".join(t["warnings"])}
+                     for t in rep.targets]
+            report.write_table(tmp / "targets.csv", tcols, trows)
+            files.append("targets.csv")
+            if plots:
+                for t in rep.targets:
+                    files += report.plot_target(tmp, t, f"{t['parameter']} ({t['unit']})",
+                                                report._label(t["quantity"]),
+                                                float(t["condition"].split()[-1]))
+        fr = rep.fragility
+        if fr is not None:
+            scol = f"stage_{unit_suffix(fr['stage_unit'])}"
+            rows = [{scol: s, **p} for s, p in zip(fr["stages"], fr["probabilities"])]
+            cols = [scol, "n"] + [c for c in fr["probabilities"][0] if c != "n"]
+            report.write_table(tmp / "fragility.csv", cols, rows)
+            srows = []
+            kcols = [f"k_{m}_m_s" for m in fr["materials"]]
+            for s, ks in enumerate(fr["k_m_s"]):
+                for j, st in enumerate(fr["stages"]):
+                    srows.append({"sample": s, **dict(zip(kcols, ks)), scol: st, fr["quantity"]: fr["values"][s, j]})
+            report.write_table(tmp / "fragility_samples.csv", ["sample"] + kcols + [scol, fr["quantity"]], srows)
+            files += ["fragility.csv", "fragility_samples.csv"]
+            if plots:
+                files += report.plot_fragility(tmp, f"river stage, {fr['stage']} ({fr['stage_unit']})",
+                                               np.asarray(fr["stages"]), fr["probabilities"], fr["criterion"],
+                                               {"wilson": "Wilson score", "clopper_pearson": "Clopper-Pearson"}
+                                               [fr["interval"]], fr["confidence"], fr["samples"], title)
+        meta = {
+            "seepfe_version": __version__, "title": title, "section": sec.source,
+            "section_sha256": sec.input_hash, "sweep_file": slabel, "mode": spec.mode,
+            "vary": {k: {"column": c} for k, c in columns.items()}, "fixed": spec.fixed, "solve": sopts,
+            "points_m": points, "exit_boundaries": spec.exit if spec.exit is not None else "every seepage face and drain",
+            "fs_required": rep.fs_required, "fs_method": rep.fs_method,
+            "units": {"length": "m", "head": "m", "flow": "m3/s per m (+ into the section)",
+                      "conductivity": "m/s", "gradient": "-", "factor of safety": "-"},
+            "cases": rep.cases, "solved_this_run": rep.solved, "from_cache": rep.cached, "backend": rep.backend,
+            "wall_s": round(rep.wall_s, 3),
+            "targets": [{k: v for k, v in t.items()} for t in rep.targets],
+            "fragility": None if fr is None else {k: v for k, v in fr.items() if k != "values"},
+            "files": files, "caution": CAUTION,
+            "note": "cases/ beside this folder caches every finished case by the sha256 of its resolved input; "
+                    "delete it to force a full rerun.",
+        }
+        write_json(tmp / "sweep.json", meta)
+        files.append("sweep.json")
+    rep.results_dir = out / "results"
+    rep.files = files

@@ -1,0 +1,287 @@
+"""The sweep file: which values vary, how each case is probed, and optional target and fragility blocks.
+
+A sweep file is JSON (see ``docs/sweeps.md``)::
+
+    {"mode": "one_at_a_time",
+     "vary": {"boundaries.river.head": {"from": 3, "to": 6, "step": 0.5},
+              "materials.blanket.k":   {"values": [2e-8, 5e-8, 1e-7]}},
+     "points": {"toe_sand": [21, -2.5]},
+     "exit": ["landside"],
+     "criterion": {"fs": 1.5},
+     "targets": [...], "fragility": {...}}
+
+Units follow the section file (m, m/s, kN/m3).
+"""
+
+from __future__ import annotations
+
+import itertools
+import json
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Annotated, Literal, Optional, Union
+
+import numpy as np
+from pydantic import AfterValidator, BaseModel, ConfigDict, Field, ValidationError, model_validator
+
+from ..errors import SectionError
+from .values import get_value, infer_unit, unit_suffix, with_values
+
+__all__ = ["SweepSpec", "RangeSpec", "TargetSpec", "FragilitySpec", "load_sweep", "values_of", "Case",
+           "expand_cases", "column_of"]
+
+
+def _finite(v: float) -> float:
+    if not math.isfinite(v):
+        raise ValueError(f"must be a finite number, got {v}")
+    return v
+
+
+Finite = Annotated[float, AfterValidator(_finite)]
+_CFG = ConfigDict(extra="forbid", frozen=True)
+
+
+class RangeSpec(BaseModel):
+    """Values of one key: ``values``, or ``from``/``to`` with ``step`` or ``count`` (``scale`` lin or log)."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+    values: Optional[list[Finite]] = None
+    start: Optional[Finite] = Field(None, alias="from")
+    stop: Optional[Finite] = Field(None, alias="to")
+    step: Optional[Finite] = None
+    count: Optional[Annotated[int, Field(ge=1, le=100_000)]] = None
+    scale: Literal["linear", "log"] = "linear"
+    unit: Optional[str] = Field(None, description="unit of the values (inferred for known keys)")
+
+    @model_validator(mode="after")
+    def _check(self):
+        if self.values is not None:
+            if self.start is not None or self.stop is not None or self.step is not None or self.count is not None:
+                raise ValueError("give either 'values' or 'from'/'to' with 'step' or 'count', not both")
+            if not self.values:
+                raise ValueError("'values' is empty")
+            return self
+        if self.start is None or self.stop is None:
+            raise ValueError("give 'values' or both 'from' and 'to'")
+        if (self.step is None) == (self.count is None):
+            raise ValueError("with 'from'/'to' give exactly one of 'step' or 'count'")
+        if self.step is not None:
+            if self.scale == "log":
+                raise ValueError("'scale': 'log' goes with 'count', not 'step'")
+            if self.step == 0 or (self.stop - self.start) * self.step < 0:
+                raise ValueError(f"'step' {self.step} does not lead from {self.start} to {self.stop}")
+            if abs((self.stop - self.start) / self.step) > 100_000:
+                raise ValueError("more than 100000 values; use a larger 'step'")
+        if self.scale == "log" and (self.start <= 0 or self.stop <= 0):
+            raise ValueError("'scale': 'log' needs 'from' and 'to' > 0")
+        return self
+
+    def array(self) -> np.ndarray:
+        if self.values is not None:
+            return np.asarray(self.values, float)
+        if self.count is not None:
+            if self.scale == "log":
+                return np.geomspace(self.start, self.stop, self.count)
+            return np.linspace(self.start, self.stop, self.count)
+        n = int(math.floor((self.stop - self.start) / self.step + 1e-9)) + 1
+        return self.start + self.step * np.arange(n)
+
+
+class SolveSpec(BaseModel):
+    """Solve options for every case (they override the section's own mesh/solver keys)."""
+
+    model_config = _CFG
+    order: Optional[Literal[1, 2]] = None
+    size: Optional[Annotated[float, Field(gt=0)]] = Field(None, description="element size, m")
+    linear: Optional[Literal["auto", "direct", "amg"]] = None
+
+
+class CriterionSpec(BaseModel):
+    model_config = _CFG
+    fs: Annotated[float, Field(gt=0)] = Field(
+        1.5, description="required factor of safety against heave/uplift at the exit (-); set the value "
+                         "your agency requires")
+
+
+class TargetSpec(BaseModel):
+    """Search one parameter for the smallest (or largest) value that meets a condition."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+    name: Optional[str] = None
+    parameter: str
+    range: Annotated[list[Finite], Field(min_length=2, max_length=2)]
+    find: Literal["smallest", "largest"] = "smallest"
+    quantity: str = "fs_min"
+    at_least: Optional[Finite] = None
+    at_most: Optional[Finite] = None
+    tolerance: Annotated[float, Field(gt=0)]
+    unit: Optional[str] = None
+    fixed: dict[str, Union[Finite, str, bool]] = Field(default_factory=dict,
+                                                       description="other values held for the search")
+
+    @model_validator(mode="after")
+    def _check(self):
+        if self.at_least is not None and self.at_most is not None:
+            raise ValueError("give 'at_least' or 'at_most', not both")
+        if self.range[0] >= self.range[1]:
+            raise ValueError(f"'range' must be [low, high] with low < high, got {self.range}")
+        if self.tolerance >= self.range[1] - self.range[0]:
+            raise ValueError("'tolerance' must be smaller than the range")
+        return self
+
+
+class LognormalSpec(BaseModel):
+    model_config = _CFG
+    cov: Annotated[float, Field(ge=0, le=20)] = Field(description="coefficient of variation of k (-)")
+    median: Optional[Annotated[float, Field(gt=0)]] = Field(
+        None, description="median k, m/s (default: the section's value; kx for anisotropic, ky keeps its ratio)")
+
+
+class FragilitySpec(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
+    stage: str = Field(description="key of the river stage (a parameter name or a dotted path)")
+    stages: RangeSpec
+    conductivity: Annotated[dict[str, LognormalSpec], Field(min_length=1)]
+    correlation: Optional[list[list[Finite]]] = Field(
+        None, description="correlation of ln k between the materials, in the order of 'conductivity'")
+    samples: Annotated[int, Field(ge=1, le=100_000)] = 50
+    sampling: Literal["latin_hypercube", "monte_carlo"] = "latin_hypercube"
+    seed: int = 0
+    quantity: str = "fs_min"
+    criterion: Optional[Annotated[float, Field(gt=0)]] = Field(None, description="default: criterion.fs")
+    confidence: Annotated[float, Field(gt=0, lt=1)] = 0.95
+    interval: Literal["wilson", "clopper_pearson"] = "wilson"
+    fixed: dict[str, Union[Finite, str, bool]] = Field(default_factory=dict)
+
+    @model_validator(mode="after")
+    def _check(self):
+        n = len(self.conductivity)
+        if self.correlation is not None:
+            C = np.asarray(self.correlation, float) if all(len(r) == n for r in self.correlation) else None
+            if C is None or C.shape != (n, n):
+                raise ValueError(f"'correlation' must be {n} x {n} (one row per entry of 'conductivity')")
+            if not np.allclose(C, C.T) or not np.allclose(np.diag(C), 1.0) or np.abs(C).max() > 1:
+                raise ValueError("'correlation' must be symmetric with ones on the diagonal and |r| <= 1")
+            if np.linalg.eigvalsh(C).min() < -1e-12:
+                raise ValueError("'correlation' is not positive semi-definite")
+        return self
+
+
+class SweepSpec(BaseModel):
+    """A whole sweep file."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True)
+    title: str = ""
+    mode: Literal["one_at_a_time", "grid"] = "one_at_a_time"
+    vary: dict[str, Union[list[Finite], RangeSpec]] = Field(default_factory=dict)
+    fixed: dict[str, Union[Finite, str, bool]] = Field(default_factory=dict,
+                                                       description="values applied to every case")
+    solve: SolveSpec = Field(default_factory=SolveSpec)
+    points: dict[str, Annotated[list[Finite], Field(min_length=2, max_length=2)]] = Field(default_factory=dict)
+    exit: Optional[list[str]] = Field(None, description="boundaries where exit gradients are checked "
+                                                        "(default: every seepage face and drain)")
+    criterion: CriterionSpec = Field(default_factory=CriterionSpec)
+    targets: list[TargetSpec] = Field(default_factory=list)
+    fragility: Optional[FragilitySpec] = None
+
+    @model_validator(mode="after")
+    def _something(self):
+        if not self.vary and not self.targets and self.fragility is None:
+            raise ValueError("nothing to do: give 'vary', 'targets' or 'fragility'")
+        return self
+
+
+def _format(e: ValidationError, label: str) -> str:
+    err = e.errors(include_url=False)[0]
+    loc = ".".join(str(x) for x in err["loc"] if not str(x).startswith(("function-", "constrained-")))
+    msg = str(err["msg"]).removeprefix("Value error, ")
+    if err["type"] == "extra_forbidden":
+        msg = "unknown key"
+    elif err["type"] == "missing":
+        msg = "missing key"
+    more = f" (and {len(e.errors()) - 1} more)" if len(e.errors()) > 1 else ""
+    return f"{label}: {loc + ': ' if loc else ''}{msg}{more}"
+
+
+def load_sweep(path_or_dict) -> tuple[SweepSpec, str]:
+    """Read and validate a sweep file (path or dict); returns (spec, label)."""
+    if isinstance(path_or_dict, dict):
+        data, label = path_or_dict, "<sweep>"
+    else:
+        label = str(path_or_dict)
+        try:
+            data = json.loads(Path(path_or_dict).read_text(encoding="utf-8-sig"))
+        except OSError as e:
+            raise SectionError(f"{label}: cannot read the file ({e.strerror or e})") from None
+        except json.JSONDecodeError as e:
+            raise SectionError(f"{label}: not valid JSON at line {e.lineno}, column {e.colno}: {e.msg}") from None
+        if not isinstance(data, dict):
+            raise SectionError(f"{label}: the top level must be a JSON object {{...}}")
+    try:
+        return SweepSpec.model_validate(data), label
+    except ValidationError as e:
+        raise SectionError(_format(e, label)) from None
+
+
+def values_of(v) -> np.ndarray:
+    return np.asarray(v, float) if isinstance(v, list) else v.array()
+
+
+def _unit_of(v) -> Optional[str]:
+    return None if isinstance(v, list) else v.unit
+
+
+def column_of(data: dict, key: str, unit: Optional[str], label: str) -> str:
+    """Table column of a varied key, unit included: 'boundaries.river.head_m'."""
+    u = unit or infer_unit(data, key)
+    if u is None:
+        raise SectionError(f"{label}: '{key}': cannot tell its unit; add \"unit\": \"m\" (or \"-\") "
+                           "to its entry")
+    return f"{key}_{unit_suffix(u)}"
+
+
+@dataclass(frozen=True)
+class Case:
+    """One case of a table sweep: the overrides, the key that varies (one-at-a-time) and the resolved dict."""
+
+    index: int
+    varied: str
+    params: dict          # {key: value} shown in the table (base values for keys not varied here)
+    section: dict
+
+
+def _plain(x: float):
+    """A float as JSON keeps it; whole numbers stay floats (the section format wants numbers)."""
+    return float(x)
+
+
+def expand_cases(spec: SweepSpec, data: dict, label: str) -> tuple[list[Case], dict[str, str]]:
+    """The cases of the 'vary' block, resolved into section dicts, and {key: column name}."""
+    keys = list(spec.vary)
+    columns = {k: column_of(data, k, _unit_of(spec.vary[k]), label) for k in keys}
+    base = {}
+    for k in keys:
+        try:
+            b = get_value(data, k)
+        except SectionError as e:
+            raise SectionError(f"{label}: vary {e}") from None
+        base[k] = float(b) if isinstance(b, (int, float)) and not isinstance(b, bool) else float("nan")
+    combos: list[tuple[str, dict, dict]] = []      # (varied, overrides, shown)
+    if spec.mode == "grid":
+        arrays = [values_of(spec.vary[k]) for k in keys]
+        for vals in itertools.product(*arrays):
+            ov = {k: _plain(v) for k, v in zip(keys, vals)}
+            combos.append(("grid", ov, ov))
+    else:
+        for k in keys:
+            for v in values_of(spec.vary[k]):
+                combos.append((k, {k: _plain(v)}, {**base, k: _plain(v)}))
+    cases = []
+    for i, (varied, ov, shown) in enumerate(combos):
+        try:
+            sec = with_values(data, {**spec.fixed, **ov}, label)
+        except SectionError as e:
+            raise SectionError(f"{label}: vary: {e}") from None
+        cases.append(Case(index=i, varied=varied, params=shown, section=sec))
+    return cases, columns
