@@ -345,7 +345,7 @@ def _blanket(result, ex: ExitChecks, up, H, land_level) -> dict:
                            zb_river=zbr, kb_river=kbr, L1=L1, end1=end1, gamma_buoyant_land=land["gamma_b"],
                            gamma_w=sec.gamma_w)
     # FE values beside it
-    h_fe = float(result.head([[xt + sgn * eps, land["base"] + 1e-6 * sec.extent]])[0]) - land_level
+    h_fe = float(result.head([[xt + sgn * 1e-6 * sec.extent, land["base"] + 1e-6 * sec.extent]])[0]) - land_level
     q_fe = float(result.boundary_flow(up.name))
     i_fe = h_fe / land["zb"]
     fs_fe = bt.get("i_critical", float("nan")) / i_fe if i_fe > 0 else math.inf
@@ -389,7 +389,9 @@ def _lane(sec, path, H, cutoffs, tol) -> dict:
     extra = 0.0
     pl = LineString(path)
     for cu in cutoffs:
-        if cu["source"] != "cutoff cut into the outline" and pl.distance(Point(cu["x_m"], cu["top_m"])) <= 10 * tol + cu["thickness_m"]:
+        near = 10 * tol + cu["thickness_m"]
+        on_path = pl.distance(Point(cu["x_m"], cu["tip_m"])) <= near      # the path already runs round it
+        if not on_path and pl.distance(Point(cu["x_m"], cu["top_m"])) <= near:
             extra += 2 * (cu["top_m"] - cu["tip_m"])
     r = hm.lane_creep(path.tolist(), H, extra)
     return {"applicable": True, **r, "table": "Lane (1935) safe weighted creep ratios, from memory: "
