@@ -25,7 +25,7 @@ from .section import Section
 __all__ = ["Mesh", "make_mesh", "estimate_triangles", "split_triangles", "add_midpoints", "split_barriers"]
 
 #: a coarse gmsh mesh above this many triangles is made by splitting a coarser one instead
-SPLIT_ABOVE = 120_000
+SPLIT_ABOVE = 30_000
 _EQ = math.sqrt(3.0) / 4.0      # area of the equilateral triangle of unit side
 
 

@@ -10,6 +10,7 @@ from dataclasses import dataclass, field
 from functools import cached_property
 
 import numpy as np
+import shapely
 
 from . import fem
 from .mesh import Mesh
@@ -141,12 +142,43 @@ class Result:
     def locate(self, points):
         """Element index and reference coordinates (xi, eta) of points; element -1 outside the section."""
         P = np.atleast_2d(np.asarray(points, float))
-        e = np.asarray(self._finder(P[:, 0], P[:, 1]), dtype=np.int64)
-        inv, _ = self._jac
-        ee = np.where(e >= 0, e, 0)
-        p0 = self.mesh.points[self.mesh.cells[ee, 0]]
-        xi = np.einsum("eab,eb->ea", inv[ee], P - p0)
+        e, xi = np.full(len(P), -1, dtype=np.int64), np.zeros((len(P), 2))
+        inside = np.flatnonzero(shapely.contains_xy(self._outline, P[:, 0], P[:, 1])
+                                | shapely.intersects_xy(self._outline.boundary, P[:, 0], P[:, 1]))
+        tree, inv = self._locator, self._jac[0]
+        cells, pts, ne = self.mesh.cells, self.mesh.points, self.mesh.n_elements
+        todo = inside
+        # the element holding a point is nearly always among the few whose centroids are nearest
+        for k in (8, 64, ne):
+            if not len(todo):
+                break
+            for s in range(0, len(todo), max(1, 2_000_000 // min(k, ne))):
+                part = todo[s:s + max(1, 2_000_000 // min(k, ne))]
+                if k < ne:
+                    cand = tree.query(P[part], k=min(k, ne))[1].reshape(len(part), -1)
+                else:
+                    cand = np.broadcast_to(np.arange(ne), (len(part), ne))
+                loc = np.einsum("mkab,mkb->mka", inv[cand], P[part, None, :] - pts[cells[cand, 0]])
+                ok = np.minimum(loc.min(axis=2), 1.0 - loc.sum(axis=2)) >= -1e-9
+                has = ok.any(axis=1)
+                first = ok.argmax(axis=1)
+                rows = np.flatnonzero(has)
+                e[part[rows]] = cand[rows, first[rows]]
+                xi[part[rows]] = loc[rows, first[rows]]
+            todo = todo[e[todo] < 0]
         return e, xi
+
+    @cached_property
+    def _locator(self):
+        from scipy.spatial import cKDTree
+        return cKDTree(self.mesh.points[self.mesh.triangles].mean(axis=1))
+
+    @cached_property
+    def _outline(self):
+        """The meshed outline (a polygon slightly grown by the geometric tolerance), prepared."""
+        poly = self.section.outline.buffer(self.section.tol * 10)
+        shapely.prepare(poly)
+        return poly
 
     def interpolate(self, values: np.ndarray, points) -> np.ndarray:
         """Interpolate nodal values at points (n, 2) with the element shape functions; nan outside."""
