@@ -232,7 +232,9 @@ def build_report(result, figures=None, *, net=None, profiles: dict | None = None
     for b in spec.boundaries:
         line = np.asarray(b.polyline, float)
         L = float(np.linalg.norm(np.diff(line, axis=0), axis=1).sum())
-        brow.append([b.name, b.kind.replace("_", " "), boundary_label(b).split(": ", 1)[1], _num(L, "{:.4g}")])
+        cond = {"seepage_face": "h = y where water leaves, no inflow", "drain": "h = y, outflow only"}.get(
+            b.kind, boundary_label(b).split(": ", 1)[1])
+        brow.append([b.name, b.kind.replace("_", " "), cond, _num(L, "{:.4g}")])
     P.append(_table(["boundary", "kind", "condition", "polyline length (m)"], brow, {3}))
     P.append('<p class="note">Outline edges not on any boundary carry no flow. Unit weight of water '
              f"{_num(sec.gamma_w, '{:g}')} kN/m³.</p>")
