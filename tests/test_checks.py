@@ -146,6 +146,30 @@ def test_khosla_exit_gradient_floor_with_downstream_cutoff():
     assert lane["weighted_m"] == pytest.approx(2 * d + (b - 0.05) / 3 + 0.05 / 3, rel=1e-9)
 
 
+def test_khosla_exit_gradient_with_a_barrier():
+    # Same problem with the cutoff as a zero-thickness barrier (section key 'barriers'): Khosla, Bose
+    # and Taylor (1936), G_E = H / (d pi sqrt(lambda)). Measured +0.36 % (0.1 m) and +0.28 % (0.05 m)
+    # at the barrier: converging from above at first order (the singular tip); tolerance 1 %.
+    H, b, d, T = 5.0, 10.0, 5.0, 60.0
+    g_e = H / (d * math.pi * math.sqrt((1 + math.sqrt(1 + (b / d) ** 2)) / 2))
+    sec = {"materials": {"sand": {"k": 1e-5, "unit_weight": 20.0}},
+           "zones": [{"name": "foundation", "material": "sand", "polygon": [[-T, -T], [b + T, -T], [b + T, 0], [-T, 0]]}],
+           "barriers": [{"name": "cutoff", "polyline": [[b, 0], [b, -d]]}],
+           "boundaries": [{"name": "upstream", "polyline": [[-T, 0], [0, 0]], "head": H},
+                          {"name": "downstream", "polyline": [[b, 0], [b + T, 0]], "seepage_face": True}],
+           "mesh": {"size": T / 12, "order": 2, "refine": [{"polyline": [[b, 0], [b, -d]], "size": 0.1, "width": 0.5},
+                                                          {"point": [0, 0], "size": 0.1}]}}
+    rep = run_checks(seepfe.solve(sec))
+    k = rep.hand[KHOSLA]
+    assert k["applicable"], k.get("reason")
+    assert k["fe_exit_gradient"] == pytest.approx(g_e, rel=0.01)
+    assert any(c["source"] == "barrier 'cutoff'" for c in rep.cutoffs)
+    # the face of the barrier is a right-angled corner: finite gradient, no 'singular' note
+    assert not any("singular" in n for n in rep.exits["downstream"].notes)
+    # Lane (1935): floor b horizontal, both faces of the barrier vertical
+    assert rep.hand["Lane weighted creep (Lane 1935)"]["weighted_m"] == pytest.approx(b / 3 + 2 * d)
+
+
 def test_khosla_not_applicable_on_shallow_foundation():
     rep = run_checks(seepfe.solve(_floor_with_cutoff(T=12.0, fine=0.25)))
     k = rep.hand[KHOSLA]

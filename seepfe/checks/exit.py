@@ -316,7 +316,7 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
         k = int(np.nanargmax(gradient))
         local = 3.0 * float(L[ee[k]])
         end = 0 if (s[k] - s[0]) <= (s[-1] - s[k]) else -1
-        if abs(s[k] - s[end]) <= local and _interior_angle(sec, xy[end]) > 0.55 * math.pi:
+        if abs(s[k] - s[end]) <= local and _interior_angle(sec, xy[end], line) > 0.55 * math.pi:
             notes.append(f"the largest surface gradient ({gradient[k]:.3g} at x {x[k]:.4g} m) lies at an end of "
                          f"'{name}', where the boundary condition changes; the exact gradient there is singular "
                          "and this value grows as the mesh is refined: judge by the gradient across the top "
@@ -337,13 +337,22 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
                       top_stratum_method=tsm, notes=notes)
 
 
-def _interior_angle(sec, p) -> float:
+def _interior_angle(sec, p, line=None) -> float:
     """Interior angle of the outline at point p (radians); pi where p is not a vertex of the outline.
 
     Where a seepage face meets a no-flow boundary at an interior angle theta, the gradient behaves
     like r^(pi / (2 theta) - 1): singular for theta > pi / 2 (e.g. a levee toe on level ground),
     finite at a right-angled corner (the face of a cutoff).
     """
+    if line is not None:
+        # a barrier ending on the exit surface here: the angle between the surface and the barrier
+        near_end = line[1] if np.linalg.norm(line[0] - p) <= np.linalg.norm(line[-1] - p) else line[-2]
+        for b in getattr(sec.spec, "barriers", None) or []:
+            bl = np.asarray(b.polyline, float)
+            for tip, nxt in ((bl[0], bl[1]), (bl[-1], bl[-2])):
+                if np.linalg.norm(tip - p) <= 10 * sec.tol:
+                    u, w = near_end - p, nxt - p
+                    return math.acos(np.clip(u @ w / (np.linalg.norm(u) * np.linalg.norm(w)), -1, 1))
     ring = np.asarray(sec.outline.exterior.coords)[:-1]
     if np.sum(ring[:, 0] * np.roll(ring[:, 1], -1) - np.roll(ring[:, 0], -1) * ring[:, 1]) < 0:
         ring = ring[::-1]                  # counter-clockwise: the section lies left of each edge

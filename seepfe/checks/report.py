@@ -155,16 +155,18 @@ def _simplify(path, tol):
 
 
 def find_cutoffs(section) -> list[dict]:
-    """Cutoffs: the section's 'checks.cutoff', and thin zones far less pervious than their neighbours.
-
-    A zero-thickness barrier is not yet part of the section format; when it is, it belongs here.
-    """
+    """Cutoffs: the section's 'checks.cutoff', its barriers (zero-thickness impervious lines), and thin
+    zones far less pervious than their neighbours."""
     out = []
     c = section.spec.checks
     if c.cutoff is not None:
         (x0, y0), (x1, y1) = c.cutoff
         out.append({"source": "checks.cutoff", "x_m": 0.5 * (x0 + x1), "top_m": max(y0, y1),
                     "tip_m": min(y0, y1), "thickness_m": 0.0})
+    for b in getattr(section.spec, "barriers", None) or []:
+        pl = np.asarray(b.polyline, float)
+        out.append({"source": f"barrier '{b.name}'", "x_m": float(pl[np.argmin(pl[:, 1]), 0]),
+                    "top_m": float(pl[:, 1].max()), "tip_m": float(pl[:, 1].min()), "thickness_m": 0.0})
     K = section.zone_tensors()
     kmax = np.linalg.eigvalsh(K)[:, -1]
     polys = [shapely.Polygon(p) for p in section.polygons]
@@ -459,7 +461,7 @@ def _terzaghi(result, ex, cutoffs, land_level, exb) -> dict:
         d = yg - cu["tip_m"]
         if d <= 0:
             continue
-        xs = face + sgn * np.linspace(0.0, d / 2, 41)
+        xs = face + sgn * np.linspace(1e-6 * sec.extent, d / 2, 41)   # just off the face: the downstream side
         ys = np.full(len(xs), cu["tip_m"])
         hh = result.head(np.stack([xs, ys], 1))
         if np.isnan(hh).any():
