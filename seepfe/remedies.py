@@ -43,7 +43,7 @@ from shapely.ops import linemerge, unary_union
 from .errors import SectionError
 from .schema import Finite, Positive, SectionSpec
 
-__all__ = ["apply", "describe", "RELIEF_WELL_LIMITS", "CutoffWall", "LandsideBerm", "RiversideBlanket",
+__all__ = ["apply", "describe", "report", "RELIEF_WELL_LIMITS", "CutoffWall", "LandsideBerm", "RiversideBlanket",
            "ToeDrain", "ReliefWells", "REMEDY_TYPES"]
 
 RELIEF_WELL_LIMITS = (
@@ -237,7 +237,7 @@ class _Geo:
             pieces = [g for g in _parts(rest) if g.area > self.tol * self.extent]
             pieces.sort(key=lambda g: -g.area)
             for k, g in enumerate(pieces):
-                names.append(n if k == 0 else f"{n} ({k + 1})")
+                names.append(n if k == 0 else _unique(n, set(self.names) | set(names)))
                 mats.append(m)
                 polys.append(g)
         self.names, self.materials, self.polys = names, mats, polys
@@ -632,7 +632,7 @@ def apply(spec: SectionSpec, data: dict, raw, label: str = "<dict>") -> dict:
         raise SectionError(f"{label}: {e}") from None
 
 
-def _apply(spec: SectionSpec, data: dict, rems: list, raw: list) -> dict:
+def _apply(spec: SectionSpec, data: dict, rems: list, raw: list, notes: list | None = None) -> dict:
     import copy
     data = copy.deepcopy(data)
     geo = _Geo(spec)
@@ -647,14 +647,16 @@ def _apply(spec: SectionSpec, data: dict, rems: list, raw: list) -> dict:
         if r.name is None:
             r = r.model_copy(update={"name": _unique(_DEFAULT_NAME[r.type], names_used)})
         names_used.append(r.name)
+        note = {"type": r.type, "name": r.name}
         if r.type == "cutoff_wall":
-            _cutoff(r, spec, geo, data, who, refine)
+            note.update(_cutoff(r, spec, geo, data, who, refine))
         elif r.type in ("landside_berm", "riverside_blanket"):
             landside = r.type == "landside_berm"
             region, (xt, xe, s) = _surface_layer(r, spec, geo, data, who, landside)
             mat = _material_for(r, data, who)
             geo.add(r.name, mat, region, who)
             surfaces.append((region, r.name))
+            note.update({"material": mat, "from_x_m": xt, "to_x_m": xe, "area_m2": float(region.area)})
             thick = min(r.thickness_toe, r.thickness_end or r.thickness_toe) if landside else r.thickness
             if data["mesh"].get("size") and thick < data["mesh"]["size"]:
                 refine.append({"polyline": [[xt, geo.ground(xt, who)], [xe, geo.ground(xe, who)]],
@@ -670,13 +672,17 @@ def _apply(spec: SectionSpec, data: dict, rems: list, raw: list) -> dict:
             new_bounds.append({"name": _unique(r.name, [b["name"] for b in data.get("boundaries", [])]),
                                "polyline": lines[0], "drain": True})
             refine.append({"polyline": lines[0], "size": max(min(r.width, r.depth) / 2, 1e-3)})
+            note.update({"from_x_m": x, "to_x_m": xe, "bottom_m": lo})
         elif r.type == "relief_wells":
-            out_line, keep_clear, _ = _wells(r, spec, geo, data, who, refine)
+            out_line, keep_clear, info = _wells(r, spec, geo, data, who, refine)
+            note.update(info)
             if keep_clear is not None:
                 clear.append(keep_clear)
             new_bounds.append({"name": _unique(r.name, [b["name"] for b in data.get("boundaries", [])]),
                                "polyline": [list(c) for c in out_line.coords], "seepage_face": True})
         geo.refresh()
+        if notes is not None:
+            notes.append(note)
     data["zones"] = [{"name": n, "material": m,
                       "polygon": [[float(x), float(y)] for x, y in np.asarray(p.exterior.coords)[:-1]]}
                      for n, m, p in zip(geo.names, geo.materials, geo.polys)]
@@ -688,20 +694,37 @@ def _apply(spec: SectionSpec, data: dict, rems: list, raw: list) -> dict:
 
 
 def describe(section) -> list[dict]:
-    """Per remedy of a loaded section: its type, name and what it became (for reports).
+    """Per remedy of a loaded section: what it became (zones, elevations, model figures), for reports.
 
-    For relief wells this includes the model's resistance and its stated limits.
+    Relief wells carry their model resistance (s/m) and the stated limits of the approximation.
     """
     from . import params
-    raw = params.resolve(section.data, section.source).get("remedies")
+    work = params.resolve(section.data, section.source)
+    raw = work.pop("remedies", None)
     if not raw:
         return []
-    out = []
-    for i, r in enumerate(validate(raw)):
-        d = {"type": r.type, "name": r.name or _DEFAULT_NAME[r.type]}
-        if r.type == "relief_wells":
-            d["method"] = ("2D equivalent line sink with the extra head of an infinite line of wells, "
-                           "Delta H = Q_w / (2 pi k W) ln(a / (2 pi r_w)) (Muskat; USACE EM 1110-2-1913)")
-            d["limits"] = RELIEF_WELL_LIMITS
-        out.append(d)
+    notes: list = []
+    _apply(SectionSpec.model_validate(work), work, validate(raw), raw, notes)
+    return notes
+
+
+def report(result) -> list[dict]:
+    """:func:`describe` plus figures from a solve; for relief wells (per the line-of-wells model):
+
+    ``flow_m3_s_per_m`` (into the well line, per m of levee), ``flow_per_well_m3_s`` Q_w = q a,
+    ``line_head_m`` (outlet + Q_w / (2 pi k W) ln(a / (2 pi r_w))), ``midway_head_m`` (the line
+    head + Q_w ln 2 / (2 pi k W), the highest head along the line, between wells), and ``limits``.
+    """
+    out = describe(result.section)
+    for d in out:
+        if d["type"] == "relief_wells":
+            q = -float(result.flows.get(d["name"], 0.0))
+            Qw = q * d["spacing_m"]
+            W = d["screen_top_m"] - d["screen_bottom_m"]
+            line = d["outlet_elevation_m"] + q * d["resistance_s_per_m"] if q > 0 else None
+            d.update({"flow_m3_s_per_m": q, "flow_per_well_m3_s": Qw, "line_head_m": line,
+                      "midway_head_m": (line + Qw * math.log(2.0) / (2 * math.pi * d["aquifer_kx_m_s"] * W))
+                      if line is not None else None})
+        elif d["type"] == "toe_drain":
+            d["flow_m3_s_per_m"] = float(result.flows.get(d["name"], 0.0))
     return out
