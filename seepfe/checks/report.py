@@ -450,7 +450,7 @@ def _khosla(result, ex, path, H, cutoffs, tol) -> dict:
 def _terzaghi(result, ex, cutoffs, land_level, exb) -> dict:
     sec = result.section
     if not cutoffs:
-        return _na("no cutoff or sheet pile in the section (give checks.cutoff, or a thin very-low-k zone)")
+        return _na("no cutoff or sheet pile in the section (a barrier, a thin very-low-k zone, or checks.cutoff)")
     out = {"applicable": True, "prisms": [], "compare": []}
     gw = sec.gamma_w
     sgn = 1.0 if np.nanmean(ex.x) >= np.mean([cu["x_m"] for cu in cutoffs]) else -1.0
