@@ -80,7 +80,7 @@ def window_of(section, pad: float = 0.04) -> tuple:
     x0, y0, x1, y1 = section.outline.bounds
     s = max(x1 - x0, y1 - y0)
     return (x0 - pad * 0.5 * s, x1 + pad * 0.5 * s, y0 - pad * 0.3 * (y1 - y0) - 0.01 * s,
-            y1 + max(0.14 * (y1 - y0), 0.02 * s))
+            y1 + max(0.14 * (y1 - y0), 0.035 * s))
 
 
 def detail_window(section, max_ratio: float = 4.5):
@@ -133,7 +133,7 @@ def frame(window, max_height_in: float = 6.5, title: str | None = None) -> Frame
     ax.set_xlabel("distance x (m)")
     ax.set_ylabel("elevation y (m)")
     if title:
-        ax.set_title(title, pad=6)
+        ax.set_title(title, pad=12)
     fr = Frame(fig, ax, W, H, (_LEFT, _XLAB, aw, ah), 0.0)
     # the stack starts under the x-axis label
     fr.cursor_in = ax.get_tightbbox(fr._renderer()).y0 / fig.dpi
@@ -187,7 +187,8 @@ def draw_zone_edges(ax, section, colour=INK, lw: float = 0.6, zorder: float = 3)
             p = np.asarray(b.polyline, float)
             k = int(np.argmin(p[:, 1]))
             ax.annotate(b.name, p[k], xytext=(4, -4), textcoords="offset points", fontsize=6.5, color=INK,
-                        ha="left", va="top", zorder=zorder + 4, annotation_clip=True)
+                        ha="left", va="top", zorder=zorder + 4, annotation_clip=True,
+                        bbox=dict(boxstyle="round,pad=0.12", fc="white", ec="none", alpha=0.8))
 
 
 def material_handles(section, colours: dict) -> list:
