@@ -13,6 +13,7 @@ import numpy as np
 import shapely
 
 from . import fem
+from .drains import drain_zone_nodes
 from .mesh import Mesh
 from .section import Section
 
@@ -45,6 +46,7 @@ class Result:
     matrix: object = field(default=None, repr=False)
     face_nodes: np.ndarray = field(default=None, repr=False)
     face_active: np.ndarray = field(default=None, repr=False)
+    kr: np.ndarray = field(default=None, repr=False)     # (E,) relative conductivity (unconfined solve)
 
     # ----------------------------------------------------------------- nodal fields
     @property
@@ -95,6 +97,9 @@ class Result:
             nodesets[i] = m.boundary_nodes(i)
             if i in reacting:
                 count[nodesets[i]] += 1
+        drain_sets = drain_zone_nodes(sec, m)
+        for nd in drain_sets.values():
+            count[nd] += 1
         out = {}
         for i, b in enumerate(sec.spec.boundaries):
             nd = nodesets[i]
@@ -104,10 +109,12 @@ class Result:
                 out[b.name] = float(b.flux * L.sum())
             else:
                 out[b.name] = float(np.sum(self.reactions[nd] / count[nd])) if len(nd) else 0.0
+        for name, nd in drain_sets.items():       # drain zones (issue 4): negative = water taken out
+            out[name] = float(np.sum(self.reactions[nd] / count[nd]))
         return out
 
     def boundary_flow(self, name: str) -> float:
-        """Flow across a named boundary, m3/s per m of section, positive into the section."""
+        """Flow across a named boundary or drain zone, m3/s per m of section, positive into the section."""
         if name not in self._flows:
             raise KeyError(self.section.boundary(name))  # raises with a 'did you mean'
         return self._flows[name]
@@ -125,6 +132,28 @@ class Result:
         net = float(f.sum())
         return {"inflow_m3_s_per_m": inflow, "outflow_m3_s_per_m": outflow, "net_m3_s_per_m": net,
                 "relative_error": abs(net) / max(inflow, outflow, 1e-300)}
+
+    # ----------------------------------------------------------------- phreatic surface (issue 4)
+    def phreatic_lines(self) -> list:
+        """Every pressure head = 0 polyline, (n, 2) arrays of x, y in m, longest first."""
+        from . import phreatic
+        return phreatic.phreatic_lines(self.mesh, self.pressure_head)
+
+    def phreatic_line(self) -> np.ndarray:
+        """The phreatic line (pressure head = 0), an (n, 2) array of x, y in m ordered upstream to
+        downstream; empty (0, 2) when the whole section is saturated."""
+        lines = self.phreatic_lines()
+        return lines[0] if lines else np.zeros((0, 2))
+
+    def seepage_faces(self) -> dict:
+        """{seepage-face boundary: {"exit_point_m", "length_m", "outflow_m3_s_per_m"}}."""
+        from . import phreatic
+        return phreatic.seepage_faces(self)
+
+    def drain_flows(self) -> dict:
+        """{drain boundary or drain zone: water it takes out, m3/s per m (>= 0)}."""
+        from . import phreatic
+        return phreatic.drain_flows(self)
 
     # ----------------------------------------------------------------- interpolation
     @cached_property
@@ -220,6 +249,7 @@ class Result:
             "head_range_m": [float(self.h.min()), float(self.h.max())],
             "mesh": dict(self.mesh.stats),
             "solver": dict(self.solver_info),
+            "phreatic": _phreatic_summary(self),
             "caution": CAUTION,
         }
 
@@ -237,3 +267,8 @@ class Result:
     def __repr__(self) -> str:
         return (f"<Result {self.section.title!r}: {self.mesh.n_elements} elements, "
                 f"balance {self.balance['relative_error']:.1e}>")
+
+
+def _phreatic_summary(result) -> dict:
+    from . import phreatic
+    return phreatic.summary(result)

@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import fem, linsolve
+from . import drains, fem, linsolve, unsaturated
 from .errors import SolverError
 from .mesh import Mesh, make_mesh
 from .result import Result
@@ -72,6 +72,9 @@ def conditions(section: Section, mesh: Mesh) -> Conditions:
             start[nodes] = True
         elif b.kind == "flux":
             load += fem.edge_load(mesh.points, mesh.edges[on], np.full(on.sum(), b.flux), n)
+    for dn in drains.drain_zone_nodes(section, mesh).values():   # drain zones: h = y, outflow only
+        face[dn] = True
+        start[dn] = True
     hn = np.flatnonzero(np.isfinite(head))
     face &= ~np.isfinite(head)            # a prescribed head wins at shared corners
     fn = np.flatnonzero(face)
@@ -165,6 +168,14 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
             converged = True
             break
         face_fixed = (face_fixed & ~release) | catch
+    unconf = None
+    if sspec.phreatic == "auto" and unsaturated.is_partly_dry(mesh, h, 10 * section.tol):
+        # part of the section lies above the phreatic surface: saturated-unsaturated solve (issue 4)
+        unconf = unsaturated.solve_unconfined(
+            section, mesh, Ke, bc, h, face_fixed, method=sspec.nonlinear, linear=method, tol=sspec.tolerance,
+            max_iterations=sspec.max_iterations)
+        h, A, fixed, face_fixed = unconf.h, unconf.matrix, unconf.fixed, unconf.face_active
+        converged = unconf.converged     # the active set of the faces is iterated inside it
     t3 = time.perf_counter()
     reactions = A @ h - bc.load
     solver = cache["solver"]
@@ -177,8 +188,12 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
     }
     if solver.method == "amg":
         info["amg_iterations"] = int(solver.iterations)
-    if not converged:
+    if unconf is not None:
+        info["unconfined"] = unconf.info
+    if not converged and unconf is None:
         log.warning("seepage-face iteration did not settle in %d passes", it)
     return Result(section=section, mesh=mesh, h=h, reactions=reactions, load=bc.load,
-                  fixed=np.sort(fixed), element_K=Kz[mesh.zone], solver_info=info, matrix=A,
+                  fixed=np.sort(fixed), solver_info=info, matrix=A,
+                  element_K=Kz[mesh.zone] if unconf is None else Kz[mesh.zone] * unconf.kr[:, None, None],
+                  kr=None if unconf is None else unconf.kr,
                   face_nodes=bc.face_nodes, face_active=face_fixed.copy())
