@@ -89,7 +89,9 @@ def binomial_interval(k: int, n: int, confidence: float = 0.95, method: str = "w
     den = 1 + z * z / n
     c = (p + z * z / (2 * n)) / den
     h = z / den * math.sqrt(p * (1 - p) / n + z * z / (4 * n * n))
-    return max(0.0, c - h), min(1.0, c + h)
+    lo = 0.0 if k == 0 else max(0.0, c - h)       # exact ends (the formula gives them up to rounding)
+    hi = 1.0 if k == n else min(1.0, c + h)
+    return lo, hi
 
 
 def probabilities(fs: np.ndarray, criterion: float, confidence: float, method: str) -> list[dict]:

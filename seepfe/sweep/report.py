@@ -56,7 +56,7 @@ def _save(fig, stem: Path) -> list[str]:
     stem.parent.mkdir(parents=True, exist_ok=True)
     out = []
     for ext in ("png", "svg"):
-        p = stem.with_suffix(f".{ext}")
+        p = stem.parent / f"{stem.name}.{ext}"      # names hold dots (dotted keys): append, never replace
         fig.savefig(p)
         out.append(p.name)
     return out
