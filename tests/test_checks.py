@@ -178,10 +178,19 @@ def test_khosla_not_applicable_on_shallow_foundation():
 
 # ------------------------------------------------------------------------------- mesh independence
 def _demo(fine):
-    with open("sections/levee_blanket.json") as f:
-        d = json.load(f)
-    d["mesh"] = {"size": 2.0, "refine": [{"polyline": [[21, 0], [60, 0]], "size": fine}]}
-    return d
+    # an invented levee on 2 m of clay over 25 m of anisotropic sand (self-contained: the demo file may change)
+    return {
+        "materials": {"fill": {"k": 1e-7, "unit_weight": 19.0}, "blanket": {"k": 5e-8, "unit_weight": 18.5},
+                      "sand": {"kx": 1e-4, "ky": 2.5e-5, "unit_weight": 20.0}},
+        "zones": [{"name": "embankment", "material": "fill", "polygon": [[-21, 0], [21, 0], [3, 6], [-3, 6]]},
+                  {"name": "top stratum", "material": "blanket",
+                   "polygon": [[-150, 0], [150, 0], [150, -2], [-150, -2]]},
+                  {"name": "foundation", "material": "sand",
+                   "polygon": [[-150, -2], [150, -2], [150, -27], [-150, -27]]}],
+        "boundaries": [{"name": "river", "polyline": [[-150, 0], [-21, 0], [-9, 4]], "head": 4.5},
+                       {"name": "landside", "polyline": [[21, 0], [150, 0]], "seepage_face": True}],
+        "mesh": {"size": 2.0, "refine": [{"polyline": [[21, 0], [60, 0]], "size": fine}]},
+    }
 
 
 def test_toe_values_mesh_independent():

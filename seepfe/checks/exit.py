@@ -147,7 +147,9 @@ def default_boundaries(section) -> list[str]:
 
 
 def infer_toe(section, line: np.ndarray) -> tuple[float, str]:
-    """x of the landside toe: checks.toe_x, else the end of the boundary nearer the highest point of the outline."""
+    """x of the landside toe: checks.toe_x; else, walking the boundary from its end nearer the crest,
+    the foot of the last stretch steeper than 1V:10H (a seepage face on the landside slope ends at the
+    toe); else the end of the boundary nearer the crest."""
     c = section.spec.checks
     if c.toe_x is not None:
         return float(c.toe_x), "checks.toe_x"
@@ -156,6 +158,12 @@ def infer_toe(section, line: np.ndarray) -> tuple[float, str]:
     xc = float(top[:, 0].mean())
     ends = line[[0, -1], 0]
     i = int(np.argmin(np.abs(ends - xc)))
+    pts = line if i == 0 else line[::-1]
+    d = np.diff(pts, axis=0)
+    steep = np.abs(d[:, 1]) > 0.1 * np.abs(d[:, 0])
+    if steep.any() and not steep.all():
+        k = int(np.flatnonzero(steep).max())
+        return float(pts[k + 1, 0]), "inferred: foot of the slope on the boundary"
     return float(ends[i]), "inferred: end of the boundary nearer the crest"
 
 
