@@ -155,6 +155,8 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
         values = np.concatenate([bc.head_values, y[bc.face_nodes[face_fixed]]])
         order_ = np.argsort(fixed)
         h = _solve_fixed(A, bc.load, fixed[order_], values[order_], method, sspec.tolerance, cache)
+        if it == 1 and sspec.phreatic == "auto" and unsaturated.is_partly_dry(mesh, h, 10 * section.tol):
+            break          # partly dry: the faces are iterated inside the unconfined solve below
         if len(bc.face_nodes) == 0:
             converged = True
             break

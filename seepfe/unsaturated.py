@@ -46,7 +46,7 @@ KR_MIN_DEFAULT = 1e-6
 STAGE_START, STAGE_RATIO, STAGE_TOL, STAGE_MAX = 0.05, 4.0, 1e-2, 4
 #: a relative flow residual below which stagnation (round-off with strong conductivity contrasts) counts
 #: as converged; the mass balance is then still better than 1e-6
-FLOOR_TOL = 1e-7
+FLOOR_TOL = 5e-7
 #: kr is averaged over SAMPLES_PER_SIDE**2 evenly spread points of each element
 SAMPLES_PER_SIDE = 4
 
