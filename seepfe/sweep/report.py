@@ -64,7 +64,7 @@ def _save(fig, stem: Path) -> list[str]:
 
 def _label(col: str) -> str:
     """'boundaries.river.head_m' -> 'boundaries.river.head (m)'; 'fs_min' -> 'lowest FS at exit (-)'."""
-    names = {"exit_gradient_max": "largest exit gradient (-)", "fs_min": "lowest FS against heave (-)"}
+    names = {"exit_gradient_max": "largest exit gradient (-)", "fs_min": "lowest FS at the exit (-)"}
     if col in names:
         return names[col]
     if col.startswith("flow_") and col.endswith("_m3_s_per_m"):
