@@ -21,7 +21,25 @@ def schema_text() -> str:
     sys.path.insert(0, str(ROOT))
     from seepfe.schema import SectionSpec
 
+    from pydantic import TypeAdapter
+
+    from seepfe.remedies import Remedy
+
     s = SectionSpec.model_json_schema(mode="validation")
+    # keys the loader resolves before the model sees the file: named parameters and remedial measures
+    rem = TypeAdapter(list[Remedy]).json_schema(mode="validation", ref_template="#/$defs/{model}")
+    s.setdefault("$defs", {}).update(rem.pop("$defs", {}))
+    s["properties"]["remedies"] = {**rem, "title": "Remedies",
+                                   "description": "remedial measures turned into zones and boundaries "
+                                                  "before meshing (docs/remedies.md)"}
+    s["properties"]["parameters"] = {
+        "title": "Parameters", "type": "object",
+        "description": "named values usable wherever a number goes, as an expression string '=name * 2' "
+                       "(docs/format.md)",
+        "additionalProperties": {"anyOf": [{"type": "number"}, {"$ref": "#/$defs/Expression"}]}}
+    s["$defs"]["Expression"] = {"type": "string", "pattern": "^=",
+                                "description": "an expression of declared parameters, e.g. '=stage + 0.5'"}
+    s = _numbers_take_expressions(s)
     s = {"$schema": "https://json-schema.org/draft/2020-12/schema",
          "$id": "https://seepfe.invalid/section.schema.json",
          "description": "Section file of seepfe (steady seepage through and under levee and dam sections). "
@@ -30,6 +48,23 @@ def schema_text() -> str:
                         "See docs/format.md.",
          **{k: v for k, v in s.items() if k != "description"}}
     return json.dumps(s, indent=2, sort_keys=True, ensure_ascii=False) + "\n"
+
+
+def _numbers_take_expressions(node, in_any_of=False):
+    """Wherever the schema asks for a number, also accept an expression string ('=...')."""
+    expr = {"$ref": "#/$defs/Expression"}
+    if isinstance(node, dict):
+        out = {k: (_numbers_take_expressions(v, k == "anyOf") if k == "anyOf"
+                   else _numbers_take_expressions(v)) for k, v in node.items()}
+        if "anyOf" in out and any(isinstance(b, dict) and b.get("type") in ("number", "integer")
+                                  for b in out["anyOf"]):
+            out["anyOf"] = out["anyOf"] + [expr]
+        elif out.get("type") in ("number", "integer") and not in_any_of:
+            return {"anyOf": [out, expr]}
+        return out
+    if isinstance(node, list):
+        return [_numbers_take_expressions(v, in_any_of) for v in node]
+    return node
 
 
 def main(argv=None) -> int:
