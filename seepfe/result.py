@@ -250,6 +250,7 @@ class Result:
             "mesh": dict(self.mesh.stats),
             "solver": dict(self.solver_info),
             "phreatic": _phreatic_summary(self),
+            **({"remedies": _remedies_summary(self)} if self.section.data.get("remedies") else {}),
             "caution": CAUTION,
         }
 
@@ -267,6 +268,11 @@ class Result:
     def __repr__(self) -> str:
         return (f"<Result {self.section.title!r}: {self.mesh.n_elements} elements, "
                 f"balance {self.balance['relative_error']:.1e}>")
+
+
+def _remedies_summary(result) -> list:
+    from . import remedies
+    return remedies.report(result)
 
 
 def _phreatic_summary(result) -> dict:

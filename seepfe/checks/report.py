@@ -368,7 +368,9 @@ def _blanket(result, ex: ExitChecks, up, H, land_level) -> dict:
                        ("gradient at toe h0/z (m/m)", bt["i0"], i_fe),
                        ("FS uplift at toe (-)", bt.get("fs"), fs_fe),
                        ("seepage q (m3/s per m)", bt["q_m3_s_per_m"], q_fe)],
-           "remark": f"x1 {bt['x1_m']:.4g} m, x3 {bt['x3_m']:.4g} m"}
+           "remark": f"x1 {bt['x1_m']:.4g} m, x3 {bt['x3_m']:.4g} m"
+                     + ("; the theory leaves out the section's remedies (wells, cutoffs): it describes the "
+                        "section without them" if sec.data.get("remedies") else "")}
     out["d70_m"] = _d70(sec, land.get("sub_zones", []))
     return out
 

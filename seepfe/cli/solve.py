@@ -27,9 +27,10 @@ def run(args) -> int:
         write_result(res, tmp, summary)
         for name, ex in checks.exits.items():
             ex.to_csv(tmp / f"checks_{_safe(name)}.csv")
+    kinds = {b.name: b.kind for b in res.section.spec.boundaries}
     print(table(f"{res.section.title or res.section.source}: flows (m3/s per m, + into the section)",
                 ["boundary", "kind", "flow (m3/s per m)"],
-                [[b.name, b.kind, f"{res.boundary_flow(b.name):+.4e}"] for b in res.section.spec.boundaries]))
+                [[n, kinds.get(n, "drain zone"), f"{q:+.4e}"] for n, q in res.flows.items()]))
     bal = summary["balance"]
     sv = summary["solver"]
     print(f"balance: in {bal['inflow_m3_s_per_m']:.4e}, out {bal['outflow_m3_s_per_m']:.4e} m3/s per m, "
@@ -37,6 +38,21 @@ def run(args) -> int:
     print(f"mesh: {summary['mesh']['elements']} P{summary['mesh']['order']} triangles, "
           f"{summary['mesh']['nodes']} nodes; solver: {sv['backend']}, {sv['unknowns']} unknowns, "
           f"{sv['seepage_face_passes']} pass(es)")
+    faces = summary.get("phreatic", {}).get("seepage_faces", {})
+    wet = [[n, f"({f['exit_point_m'][0]:.2f}, {f['exit_point_m'][1]:.2f})", f"{f['length_m']:.2f}",
+            f"{-f['outflow_m3_s_per_m']:+.4e}"] for n, f in faces.items() if f.get("exit_point_m")]
+    if wet:
+        print(table("seepage faces (where the phreatic surface meets the outline)",
+                    ["boundary", "exit point x, y (m)", "wet length (m)", "flow (m3/s per m)"], wet))
+    for d in summary.get("remedies", []):
+        what = ", ".join(f"{k} {v:.4g}" for k, v in d.items()
+                         if isinstance(v, float) and k.endswith(("_m", "_m3_s", "_m3_s_per_m")))
+        print(f"remedy '{d.get('name', d['type'])}' ({d['type']}): {what}")
+        if d.get("limits"):
+            print(f"  limits: {d['limits']}")
+    if not sv.get("converged", True):
+        print("WARNING: the solve did not converge; the results written are the best iterate and must not be "
+              "used (see solver in summary.json)")
     if checks.exits:
         print(table("underseepage checks (governing values; FS -, gradients m/m, x and distances m)",
                     ["boundary", "least FS", "at x (m)", "largest surface gradient", "largest top-stratum gradient",
