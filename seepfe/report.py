@@ -152,7 +152,7 @@ def governing_values(result, net=None, profiles: dict | None = None) -> dict:
 
 
 def build_report(result, figures=None, *, net=None, profiles: dict | None = None, show_mesh: bool = True,
-                 arrows: bool = True, generated: str | None = None) -> str:
+                 arrows: bool = True, generated: str | None = None, checks=None) -> str:
     """The report as one HTML string.
 
     Parameters
@@ -169,7 +169,10 @@ def build_report(result, figures=None, *, net=None, profiles: dict | None = None
     sec, m = result.section, result.mesh
     spec = sec.spec
     net = net or flow_net(result)
-    profiles = exit_profiles(result) if profiles is None else profiles
+    if checks is None:
+        from .checks.report import run_checks
+        checks = run_checks(result)
+    profiles = dict(checks.exits) if profiles is None else profiles
     gov = governing_values(result, net, profiles)
     summary = result.summary()
     generated = generated or _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
@@ -298,8 +301,28 @@ def build_report(result, figures=None, *, net=None, profiles: dict | None = None
         if crit:
             P.append(_table(["criterion", "value"], [[k.replace("_", " "), v] for k, v in crit.items()], {}))
         notes = [n for p in profiles.values() for n in getattr(p, "notes", [])]
-        for n in dict.fromkeys(notes):
+        for n in dict.fromkeys(notes + list(checks.notes)):
             P.append(f'<p class="note">{_e(n)}</p>')
+
+    # hand methods beside the finite elements
+    hrows = checks.hand_rows()
+    na = checks.not_applicable()
+    if hrows or na:
+        P.append("<h2>Hand methods beside the finite elements</h2>")
+        if hrows:
+            P.append(_table(["method: quantity", "hand method", "finite elements", "remark"],
+                            [[r[0], r[1], r[2], r[3]] for r in hrows], {1, 2}))
+        for line in na:
+            P.append(f'<p class="note">{_e(line)}</p>')
+
+    # remedial measures
+    for d in summary.get("remedies", []):
+        P.append(f"<h3>Remedy '{_e(d.get('name', d['type']))}' ({_e(d['type'].replace('_', ' '))})</h3>")
+        P.append(_table(["quantity", "value"],
+                        [[k, _num(v, "{:.4g}")] for k, v in d.items() if isinstance(v, (int, float))
+                         and not isinstance(v, bool)], {1}))
+        if d.get("limits"):
+            P.append(f'<p class="note">Limits: {_e(d["limits"])}</p>')
 
     # solver
     P.append("<h2>Solver</h2>")
@@ -325,7 +348,8 @@ def _close(fig) -> None:
     fig.clear()
 
 
-def write_report(result, folder, *, show_mesh: bool = True, arrows: bool = True, formats=("png", "svg")) -> Path:
+def write_report(result, folder, *, show_mesh: bool = True, arrows: bool = True, formats=("png", "svg"),
+                 checks=None) -> Path:
     """Write ``report.html`` and every figure (PNG and SVG) into an existing folder; return the HTML path."""
     from .plot import figure_set, save_figure
     from .flownet import flow_net
@@ -338,7 +362,7 @@ def write_report(result, folder, *, show_mesh: bool = True, arrows: bool = True,
         item.png = next((p.read_bytes() for p in paths if p.suffix == ".png"), None)   # embed what was written
         _close(item.fig)
         items.append(item)
-    text = build_report(result, figures=items, net=net)
+    text = build_report(result, figures=items, net=net, checks=checks)
     path = folder / "report.html"
     path.write_text(text, encoding="utf-8")
     return path

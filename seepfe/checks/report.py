@@ -233,7 +233,7 @@ def run_checks(result, boundaries: list[str] | None = None) -> ChecksReport:
         cutoffs.append(notch)
     rep.cutoffs = cutoffs
     rep.hand["blanket theory (EM 1110-2-1913 App. B)"] = _blanket(result, ex, up, H, land_level)
-    rep.hand["Lane weighted creep (Lane 1935)"] = _lane(sec, path, H, cutoffs, tol)
+    rep.hand["Lane weighted creep (Lane 1935)"] = _lane(sec, path, H, cutoffs, tol, up)
     rep.hand["Khosla exit gradient (Khosla et al. 1936)"] = _khosla(result, ex, path, H, cutoffs, tol)
     rep.hand["Terzaghi heave prism (Terzaghi 1943)"] = _terzaghi(result, ex, cutoffs, land_level, exb)
     rep.hand["Sellmeijer piping (Sellmeijer et al. 2011)"] = _sellmeijer(
@@ -383,9 +383,12 @@ def _d70(sec, zones):
     return None
 
 
-def _lane(sec, path, H, cutoffs, tol) -> dict:
+def _lane(sec, path, H, cutoffs, tol, up=None) -> dict:
     if path is None:
         return _na("no single no-flow contact path joins the upstream head boundary and the exit surface")
+    if up is not None and up.head is not None and path[:, 1].max() > up.head + tol:
+        return _na("the path between the upstream water and the exit runs above the upstream water level "
+                   "(over a crest), not along the underside of a structure")
     ends = max(path[0][1], path[-1][1])
     if path[:, 1].max() > ends + tol:
         return _na("the path between the upstream water and the exit runs over an exposed surface of the section "

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-from ..result import CAUTION
 
 
 def register(sub) -> None:
@@ -14,13 +13,14 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
-    from ..output import atomic_dir, write_result
+    from ..output import atomic_dir
     from ..report import write_report
     from ..solver import solve
+    from .solve import print_solution, write_solution
     res = solve(args.section, order=args.order)
     with atomic_dir(args.out) as tmp:
-        write_result(res, tmp)
-        write_report(res, tmp)
-    print(f"written: {args.out}/report.html (self-contained), figures/ (PNG and SVG), summary.json, CSV, VTU")
-    print(f"CAUTION: {CAUTION}")
-    return 0 if res.solver_info.get("converged", True) else 3
+        summary, checks = write_solution(res, tmp)
+        write_report(res, tmp, checks=checks)
+    return print_solution(res, summary, checks, args.out,
+                          "report.html (self-contained), figures/ (PNG and SVG), summary.json, nodes.csv, "
+                          "elements.csv, result.vtu")

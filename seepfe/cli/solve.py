@@ -16,23 +16,35 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
-    from ..output import atomic_dir, write_result
+    from ..output import atomic_dir
     from ..solver import solve
     res = solve(args.section, order=args.order, linear=args.linear)
-    summary = res.summary()
+    with atomic_dir(args.out) as tmp:
+        summary, checks = write_solution(res, tmp)
+    return print_solution(res, summary, checks, args.out, "summary.json, nodes.csv, elements.csv, result.vtu")
+
+
+def write_solution(res, folder):
+    """Checks, summary.json (with the checks), nodal/element CSV, VTU and checks_<boundary>.csv into folder."""
     from ..checks.report import run_checks
+    from ..output import write_result
+    summary = res.summary()
     checks = run_checks(res)
     summary["checks"] = checks.to_dict()
-    with atomic_dir(args.out) as tmp:
-        write_result(res, tmp, summary)
-        for name, ex in checks.exits.items():
-            ex.to_csv(tmp / f"checks_{_safe(name)}.csv")
+    write_result(res, folder, summary)
+    for name, ex in checks.exits.items():
+        ex.to_csv(folder / f"checks_{_safe(name)}.csv")
+    return summary, checks
+
+
+def print_solution(res, summary, checks, out, written: str) -> int:
+    """Print flows, balance, seepage faces, remedies, checks and hand methods; return the exit code."""
+    sv = summary["solver"]
     kinds = {b.name: b.kind for b in res.section.spec.boundaries}
     print(table(f"{res.section.title or res.section.source}: flows (m3/s per m, + into the section)",
                 ["boundary", "kind", "flow (m3/s per m)"],
                 [[n, kinds.get(n, "drain zone"), f"{q:+.4e}"] for n, q in res.flows.items()]))
     bal = summary["balance"]
-    sv = summary["solver"]
     print(f"balance: in {bal['inflow_m3_s_per_m']:.4e}, out {bal['outflow_m3_s_per_m']:.4e} m3/s per m, "
           f"relative error {bal['relative_error']:.1e}")
     print(f"mesh: {summary['mesh']['elements']} P{summary['mesh']['order']} triangles, "
@@ -65,7 +77,7 @@ def run(args) -> int:
     for note in checks.notes + [n for ex in checks.exits.values() for n in ex.notes]:
         print(f"note: {note}")
     extra = "".join(f", checks_{_safe(n)}.csv" for n in checks.exits)
-    print(f"written: {args.out}/ (summary.json, nodes.csv, elements.csv, result.vtu{extra})")
+    print(f"written: {out}/ ({written}{extra})")
     print(f"CAUTION: {CAUTION}")
     return 0 if sv.get("converged", True) else 3
 
