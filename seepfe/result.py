@@ -263,6 +263,21 @@ class Result:
             lines.append(f"    {k:<20s} {v:+.4e}")
         lines.append(f"  balance: relative error {s['balance']['relative_error']:.2e}")
         lines.append(f"  head range: {s['head_range_m'][0]:.3f} to {s['head_range_m'][1]:.3f} m")
+        for name, f in s.get("phreatic", {}).get("seepage_faces", {}).items():
+            if f.get("exit_point_m"):
+                x, y = f["exit_point_m"]
+                lines.append(f"  phreatic surface leaves through '{name}' at x = {x:.2f} m, y = {y:.2f} m")
+        from .checks.report import run_checks
+        for name, ex in run_checks(self).exits.items():
+            g = ex.governing
+            mf, mg = g.get("min_fs") or {}, g.get("max_gradient") or {}
+            if mf:
+                lines.append(f"  '{name}': least FS {mf['value']:.2f} ({mf['kind']}) at x = {mf['x_m']:.2f} m; "
+                             f"largest exit gradient {mg.get('value_m_per_m', float('nan')):.3f} at "
+                             f"x = {mg.get('x_m', float('nan')):.2f} m; "
+                             + ("passes the criteria" if g.get("passes") else
+                                f"fails the criteria within {g.get('fails_within_m_of_toe', 0):.1f} m of the toe"))
+        lines.append(f"  {CAUTION}")
         return "\n".join(lines)
 
     def __repr__(self) -> str:
