@@ -289,6 +289,8 @@ def _blanket(result, ex: ExitChecks, up, H, land_level) -> dict:
     yt = float(_top_envelope(sec, np.array([xt + sgn * eps]))[0])
     if H <= 0:
         return _na(f"the river head ({up.head:g} m) is not above the landside level ({land_level:g} m)")
+    if not np.isfinite(yt):
+        return _na(f"no ground surface just landside of the toe (x = {xt:.4g} m); set checks.toe_x")
     land = _column_props(sec, xt + sgn * eps, yt, c.contrast)
     if land is None:
         return _na("no landside top stratum at the toe (no layer markedly less pervious than the one below)")

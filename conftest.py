@@ -1,0 +1,1 @@
+"""Test configuration: the tests import seepfe from this checkout, whatever else is installed."""
