@@ -464,6 +464,8 @@ def _terzaghi(result, ex, cutoffs, land_level, exb) -> dict:
     for cu in cutoffs:
         face = cu["x_m"] + sgn * cu["thickness_m"] / 2
         i = int(np.argmin(np.abs(ex.x - face)))
+        if abs(float(ex.x[i]) - face) > 0.5 * cu["thickness_m"] + max(10 * sec.tol, 0.05 * (float(ex.y[i]) - cu["tip_m"])):
+            continue          # the exit surface does not meet this cutoff's downstream face
         yg = float(ex.y[i])
         d = yg - cu["tip_m"]
         if d <= 0:
@@ -482,7 +484,8 @@ def _terzaghi(result, ex, cutoffs, land_level, exb) -> dict:
         out["prisms"].append(t)
         out["compare"].append((f"FS heave of prism at x {face:.3g} (-)", None, t["fs"]))
     if not out["prisms"]:
-        return _na("no cutoff reaches below the exit surface")
+        return _na("no cutoff has its downstream face at the exit surface (Terzaghi's prism stands on a free "
+                   "exit surface beside the cutoff)")
     out["remark"] = "h_a from the FE heads on the prism base"
     return out
 
