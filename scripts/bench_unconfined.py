@@ -54,7 +54,12 @@ def main():
     print(f"converged: {u['converged']}, iterations: {u['iterations']}, factorizations (Newton): "
           f"{u['factorizations']}, chord steps: {u['chord_steps']}, continuation stages: "
           f"{u['continuation_stages']}, saturated passes before: {r.solver_info['seepage_face_passes']}")
-    print(f"relative flow residual: {u['relative_residual']:.2e}, balance: {r.balance['relative_error']:.2e}")
+    print(f"krylov iterations (GMRES, old LU as preconditioner): {u.get('krylov_iterations', 0)}")
+    for lv in u.get("levels", []):
+        print(f"  level P{lv['order']} {lv['nodes']} nodes: {lv['iterations']} iterations, "
+              f"{lv['factorizations']} factorisations, {lv['time_s']:.2f} s")
+    print(f"relative flow residual: {u['relative_residual']:.2e}, balance: {r.balance['relative_error']:.2e}; "
+          f"stop: {u.get('stop_reason', '')}")
     print(f"one linear solve (assemble + factorise + solve): {t_lin:.2f} s")
     print(f"unconfined solve (seepfe.solve on the same mesh): {t_unc:.2f} s "
           f"(Newton part {u['times_s']['total']:.2f} s, of which factorisations {u['times_s']['factor']:.2f} s)")

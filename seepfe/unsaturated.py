@@ -29,7 +29,7 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-from . import fem, linsolve
+from . import fem, linsolve, nested
 from .errors import SolverError
 
 __all__ = ["KrModel", "UnconfinedSolution", "solve_unconfined", "is_partly_dry", "DELTA_FACTOR",
@@ -44,9 +44,25 @@ KR_MIN_DEFAULT = 1e-6
 #: continuation: first width of the steep transition (fraction of the section's height), ratio between
 #: stages, relative residual that ends a stage, and the most Newton steps a stage takes
 STAGE_START, STAGE_RATIO, STAGE_TOL, STAGE_MAX = 0.05, 4.0, 1e-2, 4
-#: a relative flow residual below which stagnation (round-off with strong conductivity contrasts) counts
-#: as converged; the mass balance is then still better than 1e-6
-FLOOR_TOL = 5e-7
+#: stopping rule (docs/unconfined.md), with the active set unchanged: relative flow residual <= rtol; or
+#: <= max(FLOW_TOL, round-off floor) <= FLOOR_MAX (mass balance better than 1e-6) and the next correction,
+#: weighted by the nodal kr, moves no head by more than HTOL x the range of the prescribed heads and outlet
+#: elevations.  Round-off floor = FLOOR_C x EPS x sum_free (|K(h)| |h|) / Q (grows with the contrast).
+EPS = float(np.finfo(float).eps)
+FLOOR_C, FLOW_TOL, FLOOR_MAX, HTOL = 4.0, 1e-7, 1e-6, 1e-6
+#: no new best residual in this many iterations (after the continuation) ends the iteration as stalled
+STALL_ITERATIONS = 8
+#: mesh sequencing: coarse levels stop above COARSEST_NODES nodes and are solved to COARSE_RTOL
+COARSEST_NODES, COARSE_RTOL = 1500, 1e-6
+#: inexact Newton: GMRES (rows scaled by their 1-norm) to KRYLOV_RTOL with the LU of an earlier Jacobian as
+#: the preconditioner; more than KRYLOV_REFRESH iterations refactorise at the next step, KRYLOV_MAX at once
+KRYLOV_RTOL, KRYLOV_REFRESH, KRYLOV_MAX = 1e-4, 20, 40
+#: on levels that start from a prolonged solution: largest head change per step (fraction of the head range),
+#: Jacobian without the kr-derivative term in elements with kr_e below NEWTON_KR_MIN (there the Galerkin
+#: Jacobian is gravity-dominated and gives wild corrections; Picard-like there, Newton at the front)
+STEP_CAP, NEWTON_KR_MIN = 0.05, 1e-3
+#: intermediate levels use the kr transition width of the finest mesh (the coarsest keeps its own)
+COARSE_DELTA_FINE = True
 #: kr is averaged over SAMPLES_PER_SIDE**2 evenly spread points of each element
 SAMPLES_PER_SIDE = 4
 
@@ -151,6 +167,8 @@ class _System:
         keys = np.repeat(np.arange(n, dtype=np.int64), np.diff(P.indptr)) * n + P.indices
         self.pos = np.searchsorted(keys, rows.astype(np.int64) * n + cols)
         self.nnz = P.nnz
+        self.row = np.repeat(np.arange(n), np.diff(P.indptr))
+        self.diag = np.searchsorted(keys, np.arange(n, dtype=np.int64) * (n + 1))   # every node couples to itself
         self.n = n
         xi = _sample_points(SAMPLES_PER_SIDE)
         self.N = fem.shape(mesh.order, xi)                    # (S, nloc)
@@ -171,6 +189,12 @@ class _System:
     def assemble(self, kr_e: np.ndarray) -> sp.csr_matrix:
         d = np.bincount(self.pos, weights=(self.Ke * kr_e[:, None, None]).ravel(), minlength=self.nnz)
         return self.matrix(d)
+
+    def pinned(self, J: sp.csr_matrix, free: np.ndarray) -> sp.csr_matrix:
+        """J with the rows of the prescribed nodes (free False) replaced by identity rows (in place)."""
+        J.data[~free[self.row]] = 0.0
+        J.data[self.diag[~free]] = 1.0
+        return J
 
     def jacobian(self, A: sp.csr_matrix, h: np.ndarray, dkr: np.ndarray) -> sp.csr_matrix:
         """dR/dh = K(h) + sum_e (K_e h_e) (d kr_e / d h_e)^T, same pattern as K."""
@@ -194,10 +218,266 @@ def _lu(M: sp.csr_matrix):
                           "from every head boundary?") from None
 
 
+def _gmres(matvec, psolve, b: np.ndarray, rtol: float, maxiter: int):
+    """Right-preconditioned GMRES without restart: x with ||b - A x||_2 <= rtol ||b||_2 when reached.
+
+    Returns (x, iterations, reached).  Meant for few iterations (the preconditioner is the LU of a nearby
+    Jacobian), so the small least-squares problem is solved afresh at each step."""
+    beta = float(np.linalg.norm(b))
+    if beta == 0.0:
+        return np.zeros_like(b), 0, True
+    V = np.empty((maxiter + 1, len(b)))
+    Z = np.empty((maxiter, len(b)))
+    H = np.zeros((maxiter + 1, maxiter))
+    g = np.zeros(maxiter + 1)
+    g[0] = beta
+    V[0] = b / beta
+    y, res = np.zeros(0), beta
+    for j in range(maxiter):
+        Z[j] = psolve(V[j])
+        w = matvec(Z[j])
+        for _ in range(2):                                   # classical Gram-Schmidt, twice
+            c = V[:j + 1] @ w
+            w -= c @ V[:j + 1]
+            H[:j + 1, j] += c
+        H[j + 1, j] = np.linalg.norm(w)
+        y = np.linalg.lstsq(H[:j + 2, :j + 1], g[:j + 2], rcond=None)[0]
+        res = float(np.linalg.norm(g[:j + 2] - H[:j + 2, :j + 1] @ y))
+        if res <= rtol * beta or H[j + 1, j] <= 1e-14 * beta:
+            break
+        V[j + 1] = w / H[j + 1, j]
+    return y @ Z[:len(y)], len(y), bool(res <= rtol * beta)
+
+
+@dataclass
+class _Level:
+    mesh: object
+    bc: object
+    model: KrModel
+    sysm: _System
+    P: object = None                # prolongation from the next coarser level, (n, n_coarse)
+
+
+def _levels(section, mesh, Ke, bc, sequencing: bool) -> list:
+    """The levels of the solve, coarsest first (just the given mesh without sequencing)."""
+    hier = nested.hierarchy(mesh, min_nodes=COARSEST_NODES) if sequencing else [(mesh, None)]
+    out = []
+    Kz = section.zone_tensors()
+    for i, (m, P) in enumerate(hier):
+        if i == 0:
+            ke, b = Ke, bc
+        else:
+            from .solver import conditions          # solver imports this module
+            try:
+                b = conditions(section, m)
+            except SolverError:                      # a coarse level without a head node: stop there
+                hier[i - 1] = (hier[i - 1][0], None)
+                out[-1].P = None
+                break
+            ke = fem.element_matrices(m.points, m.cells, Kz[m.zone], m.order)
+        model = KrModel.build(section, m)
+        if i == 0:
+            d_fine = float(np.median(model.delta))
+        elif COARSE_DELTA_FINE and i < len(hier) - 1:     # not on the coarsest level
+            model.delta = model.delta * (d_fine / float(np.median(model.delta)))
+        out.append(_Level(mesh=m, bc=b, model=model, sysm=_System(m, ke, model), P=P))
+    return out[::-1]
+
+
+@dataclass
+class _Outcome:
+    h: np.ndarray
+    face: np.ndarray
+    A: sp.csr_matrix
+    kr: np.ndarray
+    converged: bool
+    reason: str
+    iterations: int
+    history: list
+    rel: float
+    floor: float
+
+
+def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: str, linear: str, tol: float,
+             rtol: float, budget: int, continuation: bool, stats: dict, step_cap: float = 0.0) -> _Outcome:
+    """Newton (or Picard) iteration with the seepage-face active set on one level; see docs/unconfined.md."""
+    mesh, bc, model, sysm = lv.mesh, lv.bc, lv.model, lv.sysm
+    y = mesh.points[:, 1]
+    n = mesh.n_nodes
+    fn = bc.face_nodes
+    htol = 10 * section.tol
+    # head scale for the head-change criterion: the range of the prescribed heads and outlet elevations
+    dH = max(float(np.ptp(np.concatenate([bc.head_values, y[fn]]))), htol)
+    model.stretch = 1.0
+    if continuation and not model.vg.all():
+        # continuation in the width of the default steep kr: start at about 1/20 of the section's height
+        d_med = float(np.median(model.delta)) if len(model.delta) else 1.0
+        model.stretch = max(1.0, STAGE_START * float(np.ptp(y)) / d_med)
+    face = face.copy()
+    h = h.copy()
+    history: list[float] = []
+    best = None
+    stage_it, omega, prev_norm = 0, 0.7, np.inf
+    lu = None
+    reason, converged, rel, floor = "", False, np.inf, 0.0
+    changes: list[int] = []
+
+    def fixed_set(face):
+        fixed = np.concatenate([bc.head_nodes, fn[face]])
+        values = np.concatenate([bc.head_values, y[fn[face]]])
+        o = np.argsort(fixed)
+        return fixed[o], values[o]
+
+    def residual(h):
+        kr_e, dkr = sysm.kr(h, derivative=(method == "newton"))
+        A = sysm.assemble(kr_e)
+        return kr_e, dkr, A, A @ h - bc.load
+
+    def measures(A, r, h, free, fixed):
+        """Relative flow residual and its round-off floor (see docs/unconfined.md)."""
+        Q = max(0.5 * np.abs(r[fixed]).sum(), 1e-300)          # flow through the prescribed nodes
+        rel = np.abs(r[free]).sum() / Q
+        fl = FLOOR_C * EPS * (sysm.matrix(np.abs(A.data)) @ np.abs(h))[free].sum() / Q
+        return rel, fl
+
+    it = 0
+    for it in range(1, budget + 1):
+        fixed, values = fixed_set(face)
+        h[fixed] = values
+        free_mask = np.ones(n, bool)
+        free_mask[fixed] = False
+        kr_e, dkr, A, r = residual(h)
+        rel, floor = measures(A, r, h, free_mask, fixed)
+        history.append(float(rel))
+        if model.stretch == 1.0 and (best is None or rel < best[0]):
+            best = (rel, h.copy(), A, kr_e, face.copy(), floor, it)
+        # active set of the seepage faces and drains, updated with the current iterate
+        if len(fn):
+            scale = max(np.abs(r[bc.head_nodes]).max(), 1e-300)
+            release = face & (r[fn] > 1e-9 * scale)              # inflow at an outflow point
+            catch = ~face & (h[fn] > y[fn] + htol)              # head above the outlet, no outflow yet
+            changed = bool(release.any() or catch.any())
+        else:
+            changed = False
+        changes.append(int(changed))
+        if model.stretch > 1.0 and (rel < STAGE_TOL or stage_it >= STAGE_MAX) and not changed:
+            # continuation: narrow the transition of the default kr and go on from this iterate
+            model.stretch = max(1.0, model.stretch / STAGE_RATIO)
+            stats["stages"] += 1
+            stage_it = 0
+            kr_e, dkr, A, r = residual(h)
+            rel, floor = measures(A, r, h, free_mask, fixed)
+            if model.stretch == 1.0:
+                best = (rel, h.copy(), A, kr_e, face.copy(), floor, it)
+        elif model.stretch == 1.0 and not changed and rel <= rtol:
+            converged, reason = True, f"relative flow residual {rel:.1e} <= {rtol:.0e}"
+            break
+        stage_it += 1
+        if changed:
+            face = (face & ~release) | catch
+            stats["active_set_changes"] += 1
+            fixed, values = fixed_set(face)
+            h[fixed] = values
+            free_mask[:] = True
+            free_mask[fixed] = False
+            kr_e, dkr, A, r = residual(h)
+        rn = np.abs(r[free_mask]).sum()
+        b = -r
+        b[fixed] = 0.0
+        ta = time.perf_counter()
+        if method == "newton":
+            if NEWTON_KR_MIN > 0 and step_cap > 0:
+                dkr = dkr * (kr_e >= NEWTON_KR_MIN)[:, None]
+            J = sysm.pinned(sysm.jacobian(A, h, dkr), free_mask)
+            dh = None
+            if lu is not None:
+                # inexact Newton: GMRES preconditioned with the LU of an earlier Jacobian
+                # rows scaled by their 1-norm, so the dry rows (kr_min) count as much as the wet ones
+                d = np.add.reduceat(np.abs(J.data), J.indptr[:-1])
+                eta = KRYLOV_RTOL
+                if step_cap > 0:
+                    # prolonged start: forcing term of Eisenstat and Walker (1996), choice 2
+                    prev = history[-2] if len(history) > 1 else np.inf
+                    eta = min(0.1, max(KRYLOV_RTOL, 0.9 * (rel / prev) ** 2)) if rel < prev else 0.1
+                x, k, ok = _gmres(lambda v: (J @ v) / d, lambda v: lu.solve(d * v), b / d, eta, KRYLOV_MAX)
+                stats["krylov_iterations"] += k
+                stats["linear_solves"] += k
+                if ok:
+                    dh = x
+                    stats["chord_steps"] += 1
+                if k > KRYLOV_REFRESH or not ok:
+                    lu = None                     # refactorise (now, or at the next step)
+            if dh is None:
+                if lu is None:
+                    lu = _lu(J)
+                    stats["factorizations"] += 1
+                    stats["factor_s"] += time.perf_counter() - ta
+                dh = lu.solve(b)
+                stats["linear_solves"] += 1
+        else:
+            free = np.flatnonzero(free_mask)
+            solver = linsolve.factorize(A[free][:, free].tocsr(), linear, tol)
+            stats["factorizations"] += 1
+            stats["factor_s"] += time.perf_counter() - ta
+            hn = h.copy()
+            hn[free] = solver.solve(bc.load[free] - A[free][:, fixed] @ h[fixed])
+            stats["linear_solves"] += 1
+            dh = hn - h
+        stats["solve_s"] += time.perf_counter() - ta
+        if model.stretch == 1.0 and not changed and rel <= max(FLOW_TOL, floor) <= FLOOR_MAX:
+            # flow residual small enough for the mass balance: converged when the next correction moves
+            # no head that carries flow (weighted by the relative conductivity) measurably
+            w = np.zeros(n)
+            np.maximum.at(w, mesh.cells.ravel(), np.repeat(kr_e, mesh.cells.shape[1]))
+            dmax = float(np.abs(w * dh).max())
+            if dmax <= HTOL * dH:
+                converged = True
+                reason = (f"relative flow residual {rel:.1e} <= {max(FLOW_TOL, floor):.0e} (round-off floor "
+                          f"{floor:.1e}) and next head correction x kr {dmax:.1e} m <= {HTOL:.0e} x {dH:.3g} m")
+                break
+        if step_cap > 0:
+            dh = np.clip(dh, -step_cap * dH, step_cap * dH)
+        if method == "newton":
+            # backtracking line search on the 1-norm of the flow residual
+            t = 1.0
+            for _ in range(8):
+                ht = h + t * dh
+                rt = np.abs(residual(ht)[3][free_mask]).sum()
+                if rt <= (1.0 - 1e-4 * t) * rn:
+                    break
+                t *= 0.5
+                stats["line_search_cuts"] += 1
+            h = ht
+        else:
+            # adaptive under-relaxation: grow while the residual falls, cut when it rises
+            omega = min(1.0, omega * 1.2) if rn < prev_norm else max(0.1, omega * 0.5)
+            prev_norm = rn
+            h = h + omega * dh
+        if model.stretch == 1.0 and best is not None and it - best[6] >= STALL_ITERATIONS:
+            break                                 # no gain for STALL_ITERATIONS iterations: stalled
+    if not converged:
+        if best is None:
+            best = (rel, h.copy(), A, kr_e, face.copy(), floor, it)
+        rel, h, A, kr_e, face, floor, _ = best
+        recent = changes[-STALL_ITERATIONS:]
+        if floor > FLOOR_MAX:
+            reason = (f"the round-off floor of the flow residual ({floor:.1e}) is above {FLOOR_MAX:.0e}: the "
+                      "conductivity contrast (with kr_min in dry zones) is too large for a reliable balance")
+        elif it >= budget:
+            reason = f"iteration cap ({budget} left of solver.max_iterations) reached"
+        elif sum(recent) >= len(recent) // 2:
+            reason = (f"the seepage-face / drain active set kept changing ({sum(recent)} changes in the last "
+                      f"{len(recent)} iterations)")
+        else:
+            reason = f"the flow residual stalled for {STALL_ITERATIONS} iterations above its round-off floor {floor:.1e}"
+    return _Outcome(h=h, face=face, A=A, kr=kr_e, converged=converged, reason=reason, iterations=it,
+                    history=history, rel=float(rel), floor=float(floor))
+
+
 def solve_unconfined(section, mesh, Ke: np.ndarray, bc, h0: np.ndarray, face0: np.ndarray, *,
                      method: str = "newton", linear: str = "auto", tol: float = 1e-10,
                      max_iterations: int = 60, rtol: float = 1e-9,
-                     continuation: bool = True) -> UnconfinedSolution:
+                     continuation: bool = True, sequencing: bool = True) -> UnconfinedSolution:
     """Solve the saturated-unsaturated problem from the saturated head field h0.
 
     Parameters
@@ -208,169 +488,65 @@ def solve_unconfined(section, mesh, Ke: np.ndarray, bc, h0: np.ndarray, face0: n
     h0 : (N,) starting heads (the saturated solution), m.
     face0 : state of ``bc.face_nodes`` at h0 (True = h = y).
     method : "newton" (with line search) or "picard" (adaptive under-relaxation).
-    linear : linear solver for Picard ("auto", "direct", "amg"); Newton uses sparse LU (non-symmetric).
-    rtol : stop when the flow residual at the unknown nodes (m3/s per m, 1-norm) is below rtol times
-        the flow through the section and the seepage-face active set no longer changes.
+    linear : linear solver for Picard ("auto", "direct", "amg"); Newton uses sparse LU (non-symmetric),
+        reused as the preconditioner of GMRES while it serves.
+    rtol : target of the relative flow residual (flow residual at the unknown nodes, m3/s per m, 1-norm,
+        over the flow through the section); a residual at its round-off floor (below FLOOR_MAX) also
+        stops when the next Newton correction moves no head by more than HTOL x the head range.
+    continuation : widen the default kr at the start and narrow it in stages (on the coarsest level).
+    sequencing : Newton on the nested coarse levels of a split mesh first (:mod:`seepfe.nested`).
     """
     t0 = time.perf_counter()
-    model = KrModel.build(section, mesh)
-    sysm = _System(mesh, Ke, model)
-    y = mesh.points[:, 1]
-    n = mesh.n_nodes
-    htol = 10 * section.tol
-    face = face0.copy()
-    h = h0.copy()
-    fn = bc.face_nodes
-    stats = {"factorizations": 0, "linear_solves": 0, "line_search_cuts": 0, "active_set_changes": 0, "chord_steps": 0,
-             "stages": 0,
-             "factor_s": 0.0, "solve_s": 0.0}
-    history: list[float] = []
-    best = None
-    converged = False
-    omega = 0.7
-    lu, lu_key, chord_ok = None, None, False
-    # continuation in the width of the default steep kr: start at about 1/20 of the section's height
-    height = float(np.ptp(y))
-    d_med = float(np.median(model.delta)) if len(model.delta) else 1.0
-    model.stretch = max(1.0, STAGE_START * height / d_med) if continuation else 1.0
-    if model.vg.all():
-        model.stretch = 1.0
-    stage_it = 0
-    stalled, prev_rel = 0, np.inf
-    prev_norm = np.inf
-
-    def fixed_set(face):
-        fixed = np.concatenate([bc.head_nodes, fn[face]])
-        values = np.concatenate([bc.head_values, y[fn[face]]])
-        o = np.argsort(fixed)
-        return fixed[o], values[o]
-
-    def residual(h, free):
-        kr_e, dkr = sysm.kr(h, derivative=(method == "newton"))
-        A = sysm.assemble(kr_e)
-        r = A @ h - bc.load
-        return kr_e, dkr, A, r, np.abs(r[free]).sum()
-
-    it = 0
-    for it in range(1, max_iterations + 1):
-        fixed, values = fixed_set(face)
-        h[fixed] = values
-        free_mask = np.ones(n, bool)
-        free_mask[fixed] = False
-        free = np.flatnonzero(free_mask)
-        kr_e, dkr, A, r, rn = residual(h, free)
-        # flow scale: what passes through the prescribed nodes
-        Q = max(0.5 * np.abs(r[fixed]).sum(), 1e-300)
-        rel = rn / Q
-        history.append(float(rel))
-        if best is None or rel < best[0]:
-            best = (rel, h.copy(), A, kr_e, fixed.copy(), face.copy())
-        # active set of the seepage faces and drains, updated with the current iterate
-        if len(fn):
-            rf = r[fn]
-            scale = max(np.abs(r[bc.head_nodes]).max(), 1e-300)
-            release = face & (rf > 1e-9 * scale)
-            catch = ~face & (h[fn] > y[fn] + htol)
-            changed = bool(release.any() or catch.any())
+    levels = _levels(section, mesh, Ke, bc, sequencing and method == "newton")
+    stats = {"factorizations": 0, "linear_solves": 0, "line_search_cuts": 0, "active_set_changes": 0,
+             "chord_steps": 0, "krylov_iterations": 0, "stages": 0, "factor_s": 0.0, "solve_s": 0.0}
+    act = np.zeros(mesh.n_nodes, bool)
+    act[bc.face_nodes[face0]] = True
+    used, per_level, out, history = 0, [], None, []
+    for k, lv in enumerate(levels):
+        final = k == len(levels) - 1
+        if out is None:
+            h = h0[:lv.mesh.n_nodes].copy()           # injection: coarse nodes come first
+            face = act[:lv.mesh.n_nodes][lv.bc.face_nodes]
         else:
-            changed = False
-        if model.stretch > 1.0 and (rel < STAGE_TOL or stage_it >= STAGE_MAX) and not changed:
-            # continuation: narrow the transition of the default kr and go on from this iterate
-            model.stretch = max(1.0, model.stretch / STAGE_RATIO)
-            stats["stages"] += 1
-            stage_it = 0
-            chord_ok = False
-            kr_e, dkr, A, r, rn = residual(h, free)
-            Q = max(0.5 * np.abs(r[fixed]).sum(), 1e-300)
-            rel = rn / Q
-        elif not changed and (rel < rtol or (rel < FLOOR_TOL and stalled >= 3)):
-            # rtol reached, or a round-off floor below FLOOR_TOL where three steps gained < 10 %
-            converged = True
-            break
-        stalled = stalled + 1 if rel > 0.9 * prev_rel else 0
-        prev_rel = rel
-        stage_it += 1
-        if changed:
-            face = (face & ~release) | catch
-            stats["active_set_changes"] += 1
-            fixed, values = fixed_set(face)
-            h[fixed] = values
-            free_mask[:] = True
-            free_mask[fixed] = False
-            free = np.flatnonzero(free_mask)
-            kr_e, dkr, A, r, rn = residual(h, free)
-        R = r[free]
-        ta = time.perf_counter()
-        if method == "newton":
-            dh, t = None, 1.0
-            fkey = free.tobytes() if lu is not None else None
-            if lu is not None and chord_ok and fkey == lu_key:
-                # chord step: the last factorised Jacobian, kept while it still halves the residual
-                tb = time.perf_counter()
-                dc = lu.solve(-R)
-                stats["solve_s"] += time.perf_counter() - tb
-                stats["linear_solves"] += 1
-                ht = h.copy()
-                ht[free] += dc
-                _, _, _, _, rt = residual(ht, free)
-                if rt <= 0.5 * rn:
-                    dh = dc
-                    stats["chord_steps"] += 1
-            if dh is None:
-                J = sysm.jacobian(A, h, dkr)
-                lu = _lu(J[free][:, free])
-                lu_key = free.tobytes()
-                stats["factorizations"] += 1
-                tb = time.perf_counter()
-                dh = lu.solve(-R)
-                stats["factor_s"] += tb - ta
-                stats["solve_s"] += time.perf_counter() - tb
-                stats["linear_solves"] += 1
-                # backtracking line search on the 1-norm of the flow residual
-                for _ in range(8):
-                    ht = h.copy()
-                    ht[free] += t * dh
-                    _, _, _, _, rt = residual(ht, free)
-                    if rt <= (1.0 - 1e-4 * t) * rn or rt < rtol * Q * 0.5:
-                        break
-                    t *= 0.5
-                    stats["line_search_cuts"] += 1
-            chord_ok = t == 1.0 and rt <= 0.5 * rn
-            h = ht
-        else:
-            Aff = A[free][:, free].tocsr()
-            solver = linsolve.factorize(Aff, linear, tol)
-            stats["factorizations"] += 1
-            tb = time.perf_counter()
-            Afd = A[free][:, fixed]
-            hn = h.copy()
-            hn[free] = solver.solve(bc.load[free] - Afd @ h[fixed])
-            stats["factor_s"] += tb - ta
-            stats["solve_s"] += time.perf_counter() - tb
-            stats["linear_solves"] += 1
-            # adaptive under-relaxation: grow while the residual falls, cut when it rises
-            omega = min(1.0, omega * 1.2) if rn < prev_norm else max(0.1, omega * 0.5)
-            prev_norm = rn
-            h = h + omega * (hn - h)
+            h = lv.P @ out.h                           # prolong the heads and the outlets' state
+            ac = np.zeros(levels[k - 1].mesh.n_nodes)
+            ac[levels[k - 1].bc.face_nodes[out.face]] = 1.0
+            face = (lv.P @ ac)[lv.bc.face_nodes] > 0.5
+        left = max_iterations - used
+        budget = left if final else left - max(2, left // 3)
+        if budget <= 0:
+            continue
+        t1 = time.perf_counter()
+        f0 = stats["factorizations"]
+        out = _iterate(section, lv, h, face, method=method, linear=linear, tol=tol,
+                       rtol=rtol if final else COARSE_RTOL, budget=budget, continuation=continuation and k == 0,
+                       stats=stats, step_cap=STEP_CAP if k > 0 else 0.0)
+        used += out.iterations
+        history += out.history
+        per_level.append({"nodes": int(lv.mesh.n_nodes), "order": int(lv.mesh.order), "iterations": out.iterations,
+                          "factorizations": stats["factorizations"] - f0, "converged": out.converged,
+                          "relative_residual": float(f"{out.rel:.3e}"), "time_s": round(time.perf_counter() - t1, 4)})
+    converged = out.converged
     if not converged:
-        rel, h, A, kr_e, fixed, face = best
-        log.warning("unconfined (phreatic-surface) iteration did not converge in %d iterations: relative "
+        log.warning("unconfined (phreatic-surface) iteration did not converge in %d iterations: %s; relative "
                     "flow residual %.2e (target %.0e); the best iterate is returned, marked unconverged",
-                    it, rel, rtol)
-    else:
-        fixed, _ = fixed_set(face)
+                    used, out.reason, out.rel, rtol)
+    fixed = np.sort(np.concatenate([bc.head_nodes, bc.face_nodes[out.face]]))
     info = {
-        "method": method, "iterations": it, "converged": bool(converged),
-        "relative_residual": float(history[-1] if converged else best[0]),
+        "method": method, "iterations": used, "converged": bool(converged),
+        "relative_residual": out.rel, "round_off_floor": float(f"{out.floor:.3e}"), "stop_reason": out.reason,
         "residual_history": [float(f"{v:.3e}") for v in history],
+        "levels": per_level,
         "factorizations": stats["factorizations"], "linear_solves": stats["linear_solves"],
+        "krylov_iterations": stats["krylov_iterations"],
         "line_search_cuts": stats["line_search_cuts"], "active_set_changes": stats["active_set_changes"],
         "chord_steps": stats["chord_steps"], "continuation_stages": stats["stages"],
         "kr_model": {"default": "exponential", "delta_factor": DELTA_FACTOR, "kr_min": KR_MIN_DEFAULT,
-                     "van_genuchten_zones": [section.zone_names[i] for i in np.flatnonzero(model.vg)]},
-        "dry_elements": int((kr_e < 0.5).sum()),
+                     "van_genuchten_zones": [section.zone_names[i] for i in np.flatnonzero(lv.model.vg)]},
+        "dry_elements": int((out.kr < 0.5).sum()),
         "times_s": {"total": round(time.perf_counter() - t0, 4), "factor": round(stats["factor_s"], 4),
                     "solve": round(stats["solve_s"], 4)},
     }
-    return UnconfinedSolution(h=h, matrix=A, kr=kr_e, fixed=fixed, face_active=face, converged=converged,
-                              info=info)
+    return UnconfinedSolution(h=out.h, matrix=out.A, kr=out.kr, fixed=fixed, face_active=out.face,
+                              converged=converged, info=info)

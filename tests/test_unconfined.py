@@ -239,3 +239,33 @@ def test_demo_section_small_dam():
     assert r.drain_flows()["toe drain"] > 0
     s = r.summary()
     assert "phreatic" in s and "toe drain" in s["phreatic"]["drain_outflow_m3_s_per_m"]
+
+
+def _levee_on_blanket(k_blanket):
+    """Invented levee of silty fill on a clay blanket over sand: river side at x < 0, land side at x > 26."""
+    return {"materials": {"fill": {"kx": 4e-7, "ky": 1e-7}, "clay": {"k": k_blanket}, "sand": {"kx": 2e-4, "ky": 5e-5}},
+            "zones": [{"name": "levee", "material": "fill", "polygon": [[0, 0], [26, 0], [14, 5], [10, 5]]},
+                      {"name": "blanket", "material": "clay",
+                       "polygon": [[-40, 0], [0, 0], [26, 0], [80, 0], [80, -2], [-40, -2]]},
+                      {"name": "sand", "material": "sand", "polygon": [[-40, -2], [80, -2], [80, -14], [-40, -14]]}],
+            "boundaries": [{"name": "river", "polyline": [[-40, 0], [0, 0], [10, 5]], "head": 4.0,
+                            "dry_above_level": True},
+                           {"name": "landside", "polyline": [[14, 5], [26, 0], [80, 0]], "seepage_face": True}],
+            "mesh": {"size": 1.5, "order": 2}}
+
+
+@pytest.mark.parametrize("k_blanket", [1e-8, 1e-7, 1e-6])
+def test_levee_blanket_permeability_variation_converges_with_mass_balance(k_blanket):
+    # the stopping rule (docs/unconfined.md) on an invented levee whose clay blanket k spans two orders
+    # of magnitude (contrast with the sand 2e4 ... 2e2): each case must converge, not stall, and balance
+    # (issue 4: mass balance to 1e-6 relative; global balance of the boundary flows is exact Darcy
+    # continuity, common practice)
+    r = seepfe.solve(_levee_on_blanket(k_blanket))
+    info = r.solver_info["unconfined"]
+    assert info["converged"] and r.solver_info["converged"], info["stop_reason"]
+    assert info["iterations"] <= 45
+    assert r.balance["relative_error"] < 1e-6
+    assert r.boundary_flow("river") > 0 > r.boundary_flow("landside")
+    assert r.boundary_flow("river") == pytest.approx(-r.boundary_flow("landside"), rel=1e-6)
+    # the reported residual is the one the rule accepted
+    assert info["relative_residual"] <= max(1e-7, info["round_off_floor"])
