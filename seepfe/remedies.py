@@ -41,7 +41,7 @@ from shapely.geometry import LineString, MultiPolygon, Polygon, box
 from shapely.ops import linemerge, unary_union
 
 from .errors import SectionError
-from .schema import Finite, Positive, SectionSpec
+from .schema import Conductivity, Finite, Positive, SectionSpec
 
 __all__ = ["apply", "describe", "report", "RELIEF_WELL_LIMITS", "CutoffWall", "LandsideBerm", "RiversideBlanket",
            "ToeDrain", "ReliefWells", "REMEDY_TYPES"]
@@ -82,7 +82,7 @@ class CutoffWall(_Remedy):
     bottom: Finite = Field(description="bottom (tip) elevation, m")
     thickness: NonNeg = Field(description="m; 0 = impervious sheet pile")
     material: Optional[str] = Field(None, description="material of the wall (a key of 'materials')")
-    k: Optional[Positive] = Field(None, description="isotropic conductivity of the wall, m/s (instead of material)")
+    k: Optional[Conductivity] = Field(None, description="isotropic conductivity of the wall, m/s (instead of material)")
     mesh_size: Optional[Positive] = Field(None, description="element size along the wall, m "
                                                             "(default: thickness / 2, at most the mesh size)")
 

@@ -35,6 +35,21 @@ Finite = Annotated[float, AfterValidator(_finite)]
 Positive = Annotated[float, AfterValidator(_positive), Field(json_schema_extra={"exclusiveMinimum": 0})]
 Point = Annotated[list[Finite], Field(min_length=2, max_length=2)]
 
+#: conductivities outside this range (m/s) are not soils or rocks and only break the arithmetic
+#: (clean gravel is about 1 m/s, intact rock about 1e-13 m/s; common practice)
+K_RANGE = (1e-20, 10.0)
+
+
+def _conductivity(v: float) -> float:
+    _positive(v)
+    if not K_RANGE[0] <= v <= K_RANGE[1]:
+        raise ValueError(f"{v:g} m/s is outside the range of soils and rocks ({K_RANGE[0]:g} to {K_RANGE[1]:g} m/s)")
+    return v
+
+
+Conductivity = Annotated[float, AfterValidator(_conductivity),
+                         Field(json_schema_extra={"exclusiveMinimum": 0, "maximum": K_RANGE[1]})]
+
 _CFG = ConfigDict(extra="forbid", strict=True, frozen=True)
 
 
@@ -54,9 +69,9 @@ class MaterialSpec(BaseModel):
 
     model_config = _CFG
     description: Optional[str] = None
-    k: Optional[Positive] = Field(None, description="isotropic saturated conductivity, m/s")
-    kx: Optional[Positive] = Field(None, description="principal conductivity along angle, m/s")
-    ky: Optional[Positive] = Field(None, description="principal conductivity across angle, m/s")
+    k: Optional[Conductivity] = Field(None, description="isotropic saturated conductivity, m/s")
+    kx: Optional[Conductivity] = Field(None, description="principal conductivity along angle, m/s")
+    ky: Optional[Conductivity] = Field(None, description="principal conductivity across angle, m/s")
     angle: Finite = Field(0.0, description="direction of kx, degrees counter-clockwise from +x")
     unit_weight: Optional[Positive] = Field(None, description="saturated unit weight, kN/m3")
     specific_gravity: Optional[Positive] = Field(None, description="Gs of the solids (-)")
