@@ -33,7 +33,7 @@ def test_schema_names_the_core_keys_and_units():
         assert key in mat
     assert "m/s" in mat["k"]["description"]
     # k > 0 is visible to editors (exclusive minimum on the number branch)
-    assert {"exclusiveMinimum": 0, "type": "number"} in mat["k"]["anyOf"]
+    assert {"exclusiveMinimum": 0, "maximum": 10.0, "type": "number"} in mat["k"]["anyOf"]
     bnd = s["$defs"]["BoundarySpec"]["properties"]
     for key in ("name", "polyline", "head", "seepage_face", "flux"):
         assert key in bnd
