@@ -151,11 +151,37 @@ def from_json_float(v) -> float:
     return math.nan if v is None else float(v)
 
 
+_ALLOCATOR_TUNED = False
+
+
+def _tune_allocator() -> None:
+    """Give glibc's allocator room for large arrays, once per process.
+
+    Dask starts its workers with MALLOC_TRIM_THRESHOLD_=65536, which also pins glibc's mmap
+    threshold at 128 KiB: every large numpy array is then mapped and unmapped afresh and a solve
+    costs about 1.7x the CPU time (measured with scripts/bench_sweep.py). Raising the trim and mmap
+    thresholds (mallopt M_TRIM_THRESHOLD = -1, M_MMAP_THRESHOLD = -3) undoes that. Elsewhere
+    (not Linux, not glibc) this does nothing.
+    """
+    global _ALLOCATOR_TUNED
+    if _ALLOCATOR_TUNED:
+        return
+    _ALLOCATOR_TUNED = True
+    try:
+        import ctypes
+        libc = ctypes.CDLL("libc.so.6")
+        libc.mallopt(-1, 256 * 1024 * 1024)
+        libc.mallopt(-3, 32 * 1024 * 1024)
+    except (OSError, AttributeError):
+        pass
+
+
 def run_case(payload: dict) -> dict:
     """Solve one case (payload: {"section": dict, "solve": {...}, "points": {...}, "exit": [...]}).
 
     Returns a small, JSON-ready record; a bad case gives {"status": "error: ..."} instead of raising.
     """
+    _tune_allocator()
     from ..errors import SeepfeError
     from ..section import load_section
     from ..solver import solve
