@@ -129,7 +129,8 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
     for k, p in points.items():
         if not sec.outline.buffer(sec.tol * 10).contains(Point(p)):
             raise SeepfeError(f"{slabel}: points.{k}: ({p[0]:g}, {p[1]:g}) m is outside the section")
-    fs_required = spec.criterion.fs
+    crit = sec.spec.checks.criteria
+    fs_required = spec.criterion.fs if spec.criterion.fs is not None else max(crit.fs_heave, crit.fs_uplift)
     out = Path(out) if out is not None else None
     if out is not None:
         _prepare_out(out)

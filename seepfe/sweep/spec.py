@@ -99,9 +99,10 @@ class SolveSpec(BaseModel):
 
 class CriterionSpec(BaseModel):
     model_config = _CFG
-    fs: Annotated[float, Field(gt=0)] = Field(
-        1.5, description="required factor of safety against heave/uplift at the exit (-); set the value "
-                         "your agency requires")
+    fs: Optional[Annotated[float, Field(gt=0)]] = Field(
+        None, description="required factor of safety against heave/uplift at the exit (-); default: the "
+                          "section's checks.criteria (the larger of fs_heave and fs_uplift); set the value "
+                          "your agency requires")
 
 
 class TargetSpec(BaseModel):
