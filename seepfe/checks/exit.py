@@ -136,7 +136,10 @@ def _finite_or_none(d):
 
 
 def default_boundaries(section) -> list[str]:
-    """Every seepage face, plus head boundaries at the lowest prescribed head when heads differ."""
+    """The section's ``checks.boundaries`` when given; else every seepage face, plus head boundaries
+    at the lowest prescribed head when heads differ."""
+    if section.spec.checks.boundaries is not None:
+        return list(section.spec.checks.boundaries)
     bs = section.spec.boundaries
     names = [b.name for b in bs if b.kind == "seepage_face"]
     heads = [b.head for b in bs if b.kind == "head"]

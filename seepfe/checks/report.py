@@ -206,8 +206,7 @@ def run_checks(result, boundaries: list[str] | None = None) -> ChecksReport:
     and the hand methods beside them."""
     sec = result.section
     c = sec.spec.checks
-    names = boundaries if boundaries is not None else (c.boundaries if c.boundaries is not None
-                                                       else default_boundaries(sec))
+    names = boundaries if boundaries is not None else default_boundaries(sec)
     for n in names:
         if n not in sec.boundary_names:
             raise SectionError(f"{sec.source}: checks.boundaries: no boundary named '{n}' "
