@@ -94,7 +94,9 @@ def detail_window(section, max_ratio: float = 4.5):
     W, Hs = x1 - x0, y1 - y0
     if W / max(Hs, 1e-300) <= max_ratio:
         return None
-    narrow = [p for p in section.polygons if np.ptp(p[:, 0]) < 0.5 * W]
+    # zones narrower than a quarter of the section (embankment, berm, cutoff, drains), not the long
+    # layers (which remedies may cut into long pieces)
+    narrow = [p for p in section.polygons if np.ptp(p[:, 0]) < 0.25 * W]
     if not narrow:
         return None
     a = min(p[:, 0].min() for p in narrow) - Hs
@@ -121,7 +123,11 @@ def frame(window, max_height_in: float = 6.5, title: str | None = None) -> Frame
     if ah > max_height_in:
         ah = max_height_in
         aw = ah * (x1 - x0) / (y1 - y0)
-    top = _TOP if title else 0.12
+    if title and len(title) > 70:
+        import textwrap
+        title = "\n".join(textwrap.wrap(title, 70))
+    nlines = title.count("\n") + 1 if title else 0
+    top = (_TOP + 0.22 * (nlines - 1)) if title else 0.12
     H = top + ah + _XLAB
     W = max(FIG_WIDTH_IN, _LEFT + aw + _RIGHT)
     fig = Figure(figsize=(W, H))
@@ -221,6 +227,7 @@ def draw_boundaries(ax, section, labels: bool = True, window=None, zorder: float
     from shapely.geometry import Point
     x0, x1, y0, y1 = window or ax.get_xlim() + ax.get_ylim()
     kinds = {}
+    placed: list = []
     for b in section.spec.boundaries:
         line = np.asarray(b.polyline, float)
         col = KIND_COLOUR[b.kind]
@@ -245,11 +252,28 @@ def draw_boundaries(ax, section, labels: bool = True, window=None, zorder: float
         off = 9.0
         ha = "center" if abs(n[0]) < 0.5 else ("left" if n[0] > 0 else "right")
         va = "center" if abs(n[1]) < 0.5 else ("bottom" if n[1] > 0 else "top")
-        ax.annotate(boundary_label(b), mid, xytext=(off * n[0], off * n[1]), textcoords="offset points",
-                    ha=ha, va=va, fontsize=7, color=col, zorder=zorder + 1, annotation_clip=True,
-                    bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.85))
+        ann = ax.annotate(boundary_label(b), mid, xytext=(off * n[0], off * n[1]), textcoords="offset points",
+                          ha=ha, va=va, fontsize=7, color=col, zorder=zorder + 1, annotation_clip=True,
+                          bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.85))
+        _keep_clear(ax, ann, n, placed)
     names = {"head": "prescribed head", "seepage_face": "seepage face", "drain": "drain", "flux": "inflow"}
     return [Line2D([], [], color=c, lw=2.6, label=names[k]) for k, c in kinds.items()]
+
+
+def _keep_clear(ax, ann, n, placed: list, step: float = 11.0, tries: int = 6) -> None:
+    """Move a label further out along the boundary normal n until it overlaps no label placed before."""
+    try:
+        r = ax.figure.canvas.get_renderer()
+    except AttributeError:          # a canvas without a renderer: leave the label where it is
+        return
+    bb = ann.get_window_extent(r)
+    for k in range(tries):
+        if not any(bb.overlaps(p) for p in placed):
+            break
+        dx, dy = ann.xyann
+        ann.xyann = (dx + step * n[0], dy + step * (n[1] if abs(n[1]) >= 0.5 else 1.0))
+        bb = ann.get_window_extent(r)
+    placed.append(bb)
 
 
 def triangulation(mesh):
