@@ -28,6 +28,13 @@ if [ -n "$missing" ]; then
   fi
 fi
 
+# a Python managed by the system (PEP 668) refuses pip installs outside a virtual environment
+if [ -z "${VIRTUAL_ENV:-}" ] && "$PY" -c 'import sys, sysconfig, os; sys.exit(0 if os.path.exists(os.path.join(sysconfig.get_path("stdlib"), "EXTERNALLY-MANAGED")) else 1)'; then
+  echo "error: $PY is managed by the system; make a virtual environment first:" >&2
+  echo "  python3 -m venv .venv && . .venv/bin/activate && bash scripts/install.sh $*" >&2
+  exit 1
+fi
+
 extras=""
 [ "$want_test" = 1 ] && extras="[test,cluster]"
 "$PY" -m pip install -q --disable-pip-version-check -e ".${extras}"
