@@ -150,7 +150,14 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
     converged = False
     history = []
     it = 0
-    for it in range(1, sspec.max_iterations + 1):
+    start = None
+    if sspec.phreatic == "auto" and sspec.nonlinear == "newton":
+        # a nested (split) mesh: the first saturated solve on its coarsest level; partly dry there, the
+        # unconfined solve starts from it and the saturated solve of this mesh is not needed
+        start = unsaturated.saturated_start(section, mesh, method, sspec.tolerance)
+        if start is not None:
+            cache = start[3]
+    for it in range(1, 0 if start is not None else sspec.max_iterations + 1):
         fixed = np.concatenate([bc.head_nodes, bc.face_nodes[face_fixed]])
         values = np.concatenate([bc.head_values, y[bc.face_nodes[face_fixed]]])
         order_ = np.argsort(fixed)
@@ -171,11 +178,11 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
             break
         face_fixed = (face_fixed & ~release) | catch
     unconf = None
-    if sspec.phreatic == "auto" and unsaturated.is_partly_dry(mesh, h, 10 * section.tol):
+    if start is not None or (sspec.phreatic == "auto" and unsaturated.is_partly_dry(mesh, h, 10 * section.tol)):
         # part of the section lies above the phreatic surface: saturated-unsaturated solve (issue 4)
         unconf = unsaturated.solve_unconfined(
-            section, mesh, Ke, bc, h, face_fixed, method=sspec.nonlinear, linear=method, tol=sspec.tolerance,
-            max_iterations=sspec.max_iterations)
+            section, mesh, Ke, bc, None if start is not None else h, face_fixed, method=sspec.nonlinear,
+            linear=method, tol=sspec.tolerance, max_iterations=sspec.max_iterations, start=start)
         h, A, fixed, face_fixed = unconf.h, unconf.matrix, unconf.fixed, unconf.face_active
         converged = unconf.converged     # the active set of the faces is iterated inside it
     t3 = time.perf_counter()
