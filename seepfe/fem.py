@@ -109,8 +109,10 @@ def _p1_matrices(points: np.ndarray, cells: np.ndarray, K: np.ndarray) -> np.nda
 def assemble(cells: np.ndarray, Ke: np.ndarray, n: int) -> sp.csr_matrix:
     """Global CSR matrix from local matrices (duplicates summed)."""
     nl = cells.shape[1]
-    rows = np.repeat(cells, nl, axis=1).ravel()
-    cols = np.tile(cells, (1, nl)).ravel()
+    # 32-bit indices where they fit: half the index traffic, and scipy keeps them as they are
+    c = cells.astype(np.int32, copy=False) if n < 2**31 - 1 else cells
+    rows = np.repeat(c, nl, axis=1).ravel()
+    cols = np.tile(c, (1, nl)).ravel()
     A = sp.coo_matrix((Ke.ravel(), (rows, cols)), shape=(n, n)).tocsr()
     A.sum_duplicates()
     return A
