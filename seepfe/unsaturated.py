@@ -239,6 +239,14 @@ def saturated_start(section, mesh, linear: str = "direct", tol: float = 1e-10):
 
 
 def _lu(M: sp.csr_matrix):
+    if M.nnz <= 10 * M.shape[0]:
+        # P1 pattern (about 7 entries a row): COLAMD is faster to factor and to solve with than minimum
+        # degree on A + A^T (81k unknowns: 0.22 s and 13 ms against 1.76 s and 17 ms per factorisation/solve)
+        try:
+            return spla.splu(M.tocsc(), permc_spec="COLAMD")
+        except RuntimeError as e:
+            raise SolverError(f"the unconfined system is singular ({e}): is part of the section cut off "
+                              "from every head boundary?") from None
     try:
         # minimum degree on A + A^T with the symmetric-mode pivot preference: the Jacobian has the symmetric
         # pattern of K, and this LU has about half the fill of COLAMD's, so each GMRES preconditioner solve
