@@ -23,7 +23,7 @@ import numpy as np
 from .errors import SeepfeError
 from .result import CAUTION
 
-__all__ = ["build_report", "write_report", "governing_values", "exit_profiles"]
+__all__ = ["build_report", "write_report", "write_pdf", "governing_values", "exit_profiles"]
 
 log = logging.getLogger("seepfe")
 
@@ -366,3 +366,30 @@ def write_report(result, folder, *, show_mesh: bool = True, arrows: bool = True,
     path = folder / "report.html"
     path.write_text(text, encoding="utf-8")
     return path
+
+
+def write_pdf(html: Path, pdf: Path, timeout: float = 120.0) -> Path:
+    """Print a report to PDF with headless Chromium (the browser must be installed; nothing is fetched).
+
+    Raises SeepfeError when no Chromium is found or it fails, so the caller writes no PDF.
+    """
+    import shutil
+    import subprocess
+    import tempfile
+    exe = next((shutil.which(n) for n in ("chromium", "chromium-browser", "google-chrome") if shutil.which(n)),
+               None)
+    if exe is None:
+        raise SeepfeError("--pdf needs headless Chromium (Debian package 'chromium'); the HTML report is "
+                          "self-contained and prints from any browser")
+    with tempfile.TemporaryDirectory(prefix="seepfe-chromium-") as profile:
+        cmd = [exe, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+               "--disable-background-networking", "--disable-component-update", "--disable-sync",
+               f"--user-data-dir={profile}", "--no-pdf-header-footer", f"--print-to-pdf={pdf}",
+               Path(html).resolve().as_uri()]
+        try:
+            subprocess.run(cmd, check=True, capture_output=True, timeout=timeout)
+        except (subprocess.SubprocessError, OSError) as e:
+            raise SeepfeError(f"Chromium could not print the report to PDF ({type(e).__name__})") from None
+    if not Path(pdf).exists() or Path(pdf).stat().st_size == 0:
+        raise SeepfeError("Chromium wrote no PDF")
+    return Path(pdf)
