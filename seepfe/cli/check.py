@@ -2,13 +2,12 @@
 
 from __future__ import annotations
 
-from .common import table
+from .common import add_section_args, table
 
 
 def register(sub) -> None:
     c = sub.add_parser("check", help="validate a section file and mesh it; print a summary")
-    c.add_argument("section", help="section file (JSON)")
-    c.add_argument("--order", type=int, choices=(1, 2), default=None, help="element order (default: file, 2)")
+    add_section_args(c, out=False)
     c.set_defaults(func=run)
 
 

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-__all__ = ["table"]
+__all__ = ["table", "add_section_args"]
 
 
 def table(title: str, header: list[str], rows: list[list]) -> str:
@@ -13,3 +13,11 @@ def table(title: str, header: list[str], rows: list[list]) -> str:
     out += ["  ".join(str(c).rjust(x) if i else str(c).ljust(x) for i, (c, x) in enumerate(zip(r, w)))
             for r in rows]
     return "\n".join(out)
+
+
+def add_section_args(p, out: bool = True) -> None:
+    """The arguments every solving subcommand shares: SECTION, --out DIR (optional), --order."""
+    p.add_argument("section", help="section file (JSON)")
+    if out:
+        p.add_argument("--out", required=True, help="output folder (replaced whole on success)")
+    p.add_argument("--order", type=int, choices=(1, 2), default=None, help="element order (default: file, 2)")

@@ -2,14 +2,14 @@
 
 from __future__ import annotations
 
+from .common import add_section_args
+
 from ..result import CAUTION
 
 
 def register(sub) -> None:
     p = sub.add_parser("plot", help="solve a section and write its figures (PNG and SVG) to a folder")
-    p.add_argument("section", help="section file (JSON)")
-    p.add_argument("--out", required=True, help="output folder (replaced whole on success)")
-    p.add_argument("--order", type=int, choices=(1, 2), default=None, help="element order (default: file, 2)")
+    add_section_args(p)
     p.add_argument("--mesh", action="store_true", help="also draw the mesh")
     p.add_argument("--arrows", action="store_true", help="also draw Darcy-velocity arrows")
     p.add_argument("--pressure", choices=("pore_pressure", "pressure_head"), default="pore_pressure",

@@ -2,13 +2,12 @@
 
 from __future__ import annotations
 
+from .common import add_section_args
 
 
 def register(sub) -> None:
     p = sub.add_parser("report", help="solve a section and write a self-contained HTML report to a folder")
-    p.add_argument("section", help="section file (JSON)")
-    p.add_argument("--out", required=True, help="output folder (replaced whole on success)")
-    p.add_argument("--order", type=int, choices=(1, 2), default=None, help="element order (default: file, 2)")
+    add_section_args(p)
     p.add_argument("--pdf", action="store_true", help="also print the report to report.pdf (headless Chromium)")
     p.set_defaults(func=run)
 

@@ -3,14 +3,12 @@
 from __future__ import annotations
 
 from ..result import CAUTION
-from .common import table
+from .common import add_section_args, table
 
 
 def register(sub) -> None:
     s = sub.add_parser("solve", help="solve a section and write results to a folder")
-    s.add_argument("section", help="section file (JSON)")
-    s.add_argument("--out", required=True, help="output folder (replaced whole on success)")
-    s.add_argument("--order", type=int, choices=(1, 2), default=None, help="element order (default: file, 2)")
+    add_section_args(s)
     s.add_argument("--linear", choices=("auto", "direct", "amg"), default=None, help="linear solver")
     s.set_defaults(func=run)
 
