@@ -2,9 +2,8 @@
 
 from __future__ import annotations
 
-from .common import add_section_args
-
 from ..result import CAUTION
+from .common import add_section_args
 
 
 def register(sub) -> None:
