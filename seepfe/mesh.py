@@ -110,14 +110,12 @@ def estimate_triangles(section: Section, size: float | None = None) -> float:
         rs = min(r.size, S)
         w = r.width or rs
         slope = 0.25
-        grow = (S - rs) / slope
         if r.polyline is not None:
             L = float(np.sum(np.linalg.norm(np.diff(np.asarray(r.polyline), axis=0), axis=1)))
             band = 2 * L * (w / rs**2 + (1.0 / slope) * (1.0 / rs - 1.0 / S))
             n += band / _EQ
         else:
             n += (math.pi * w * w / rs**2 + 2 * math.pi / slope**2 * math.log(S / rs)) / _EQ
-        del grow
     return n
 
 

@@ -152,7 +152,7 @@ def governing_values(result, net=None, profiles: dict | None = None) -> dict:
 
 
 def build_report(result, figures=None, *, net=None, profiles: dict | None = None, show_mesh: bool = True,
-                 arrows: bool = True, generated: str | None = None, checks=None) -> str:
+                 arrows: bool = True, generated: str | None = None, checks=None, summary: dict | None = None) -> str:
     """The report as one HTML string.
 
     Parameters
@@ -174,7 +174,7 @@ def build_report(result, figures=None, *, net=None, profiles: dict | None = None
         checks = run_checks(result)
     profiles = dict(checks.exits) if profiles is None else profiles
     gov = governing_values(result, net, profiles)
-    summary = result.summary()
+    summary = summary if summary is not None else result.summary()
     generated = generated or _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
     if figures is None:
         figures = figure_set(result, show_mesh=show_mesh, arrows=arrows, net=net)
@@ -349,7 +349,7 @@ def _close(fig) -> None:
 
 
 def write_report(result, folder, *, show_mesh: bool = True, arrows: bool = True, formats=("png", "svg"),
-                 checks=None) -> Path:
+                 checks=None, summary: dict | None = None) -> Path:
     """Write ``report.html`` and every figure (PNG and SVG) into an existing folder; return the HTML path."""
     from .plot import figure_set, save_figure
     from .flownet import flow_net
@@ -362,7 +362,7 @@ def write_report(result, folder, *, show_mesh: bool = True, arrows: bool = True,
         item.png = next((p.read_bytes() for p in paths if p.suffix == ".png"), None)   # embed what was written
         _close(item.fig)
         items.append(item)
-    text = build_report(result, figures=items, net=net, checks=checks)
+    text = build_report(result, figures=items, net=net, checks=checks, summary=summary)
     path = folder / "report.html"
     path.write_text(text, encoding="utf-8")
     return path

@@ -156,18 +156,6 @@ class Result:
         return phreatic.drain_flows(self)
 
     # ----------------------------------------------------------------- interpolation
-    @cached_property
-    def _finder(self):
-        from matplotlib.tri import Triangulation
-        p = self.mesh.points[: self.mesh.n_vertices]
-        t = self.mesh.triangles
-        if len(getattr(self.mesh, "barrier_edges", ())):
-            # nodes doubled along barriers: one node per place, or the point finder refuses the mesh
-            p, inv = np.unique(p, axis=0, return_inverse=True)
-            t = inv.reshape(-1)[t]
-        tri = Triangulation(p[:, 0], p[:, 1], t)
-        return tri.get_trifinder()
-
     def locate(self, points):
         """Element index and reference coordinates (xi, eta) of points; element -1 outside the section."""
         P = np.atleast_2d(np.asarray(points, float))

@@ -97,15 +97,6 @@ def blanket_theory(H: float, d: float, kf: float, *, zb_land: float, kb_land: fl
     return out
 
 
-def blanket_head(h0: float, c3: float, x: float, L3: float, end3: str) -> float:
-    """Head beneath the landside top stratum at distance x beyond the toe (EM 1110-2-1913, App. B), m."""
-    if end3 == "infinite":
-        return h0 * math.exp(-c3 * x)
-    if end3 == "blocked":
-        return h0 * math.cosh(c3 * (L3 - x)) / math.cosh(c3 * L3)
-    return h0 * math.sinh(c3 * (L3 - x)) / math.sinh(c3 * L3)
-
-
 def lane_creep(path, H: float, extra_vertical: float = 0.0) -> dict:
     """Lane's weighted creep along a contact path [[x, y], ...] (m) under a head difference H (m).
 

@@ -323,7 +323,7 @@ def _blanket(result, ex: ExitChecks, up, H, land_level) -> dict:
     land_edge = x1 if sgn > 0 else x0
     river_edge = x0 if sgn > 0 else x1
 
-    def extent(xa, xb, zref):
+    def extent(xa, xb):
         xs_ = np.linspace(xa, xb, 41)[1:]
         ys_ = _top_envelope(sec, xs_)
         cols = strata.columns(sec, xs_, ys_, contrast=c.contrast, depth=c.top_stratum_depth)
@@ -332,12 +332,12 @@ def _blanket(result, ex: ExitChecks, up, H, land_level) -> dict:
             return abs(xs_[np.argmax(gone)] - xa), "open"
         return abs(xb - xa), "blocked"
 
-    L3, end3 = extent(xt, land_edge, land["zb"])
+    L3, end3 = extent(xt, land_edge)
     notes = []
     if river is None or river["d"] <= 0:
         L1, end1, zbr, kbr, d_r = 0.0, "none", 0.0, 0.0, land["d"]
     else:
-        L1, end1 = extent(xr, river_edge, river["zb"])
+        L1, end1 = extent(xr, river_edge)
         zbr, kbr, d_r = river["zb"], river["kb"], river["d"]
     if abs(d_r - land["d"]) > 0.2 * land["d"]:
         return _na(f"the substratum thickness changes under the levee ({d_r:.3g} m riverside, {land['d']:.3g} m "

@@ -20,7 +20,7 @@ def run(args) -> int:
     res = solve(args.section, order=args.order)
     with atomic_dir(args.out) as tmp:
         summary, checks = write_solution(res, tmp)
-        html = write_report(res, tmp, checks=checks)
+        html = write_report(res, tmp, checks=checks, summary=summary)
         if args.pdf:
             write_pdf(html, tmp / "report.pdf")
     return print_solution(res, summary, checks, args.out,
