@@ -9,13 +9,13 @@ Results support, and never replace, the judgement of a licensed engineer; local 
 criteria govern.
 """
 
-__version__ = "0.1.0"
-
+from .about import CAUTION, __version__
 from .errors import MeshError, SectionError, SeepfeError, SolverError
 from .mesh import Mesh, make_mesh
-from .result import CAUTION, Result
+from .result import Result
+from .analysis import Analysis, analyse
 from .section import Section, load_section
 from .solver import solve
 
-__all__ = ["__version__", "load_section", "solve", "make_mesh", "Section", "Mesh", "Result",
+__all__ = ["__version__", "load_section", "solve", "analyse", "make_mesh", "Section", "Mesh", "Result", "Analysis",
            "SeepfeError", "SectionError", "MeshError", "SolverError", "CAUTION"]

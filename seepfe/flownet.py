@@ -182,7 +182,7 @@ def _reference_zone_k(result) -> tuple[float, str]:
 
 
 def flow_net(result, n_drops: int | None = None, k_ref: float | None = None,
-             target_channels: float = 5.0) -> FlowNet:
+             target_channels: float = 5.0, stream: "StreamFunction | None" = None) -> FlowNet:
     """Stream function and flow-net numbers for a solved section.
 
     Homogeneous section (one conductivity tensor everywhere), or ``k_ref`` given: the equipotentials
@@ -202,8 +202,11 @@ def flow_net(result, n_drops: int | None = None, k_ref: float | None = None,
         Number of equipotential drops Nd.
     k_ref : float, optional
         Reference conductivity (m/s) for a net of squares in the zones of that conductivity.
+    stream : StreamFunction, optional
+        The stream function of this result when already computed (:attr:`seepfe.Analysis.stream_function`
+        keeps one per solve).
     """
-    sf = _cached_stream_function(result)
+    sf = stream if stream is not None else stream_function(result)
     hmin, hmax = float(result.h.min()), float(result.h.max())
     H = hmax - hmin
     bal = result.balance
@@ -235,12 +238,3 @@ def flow_net(result, n_drops: int | None = None, k_ref: float | None = None,
     return FlowNet(psi=sf.psi, q_total=sf.range, q_solver=q_solver, head_loss=H, n_drops=n_drops, dh=dh,
                    k_ref=float(k_ref), dpsi=dpsi, n_channels=float(nf), reference_material=ref_name,
                    misfit=sf.misfit, h_min=hmin, h_max=hmax, squares=squares)
-
-
-def _cached_stream_function(result) -> StreamFunction:
-    sf = result.__dict__.get("_seepfe_stream_function")
-    if sf is None:
-        sf = stream_function(result)
-        result.__dict__["_seepfe_stream_function"] = sf
-    return sf
-

@@ -1,4 +1,4 @@
-"""Write a result to a folder: summary.json, nodes.csv, elements.csv, result.vtu.
+"""Write an analysed result to a folder: summary.json, nodes.csv, elements.csv, checks_*.csv, result.vtu.
 
 Everything is written into a temporary sibling folder that is renamed into place only when complete,
 so a failed run never leaves a half-written output folder.
@@ -16,9 +16,8 @@ from pathlib import Path
 import numpy as np
 
 from .errors import SeepfeError
-from .result import Result
 
-__all__ = ["atomic_dir", "write_result", "write_csv"]
+__all__ = ["atomic_dir", "write_analysis", "write_result", "write_csv", "write_json", "safe_name"]
 
 
 @contextlib.contextmanager
@@ -68,13 +67,33 @@ def write_json(path: Path, data: dict) -> None:
     path.write_text(json.dumps(data, indent=2, default=_json_default, allow_nan=True) + "\n")
 
 
-def write_result(result: Result, folder: Path, summary: dict | None = None) -> None:
-    """Write the standard result files into an existing folder."""
+def safe_name(name: str) -> str:
+    """A boundary name as a file-name part."""
+    return "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in name)
+
+
+def write_analysis(analysis, folder: Path) -> list[str]:
+    """summary.json (``analysis.to_dict()``), the field files and one checks_<boundary>.csv per exit
+    surface into an existing folder; returns the names written."""
+    folder = Path(folder)
+    write_json(folder / "summary.json", analysis.to_dict())
+    write_result(analysis.result, folder)
+    names = ["summary.json", "nodes.csv", "elements.csv", "result.vtu"]
+    for name, ex in analysis.exits.items():
+        f = f"checks_{safe_name(name)}.csv"
+        ex.to_csv(folder / f)
+        names.append(f)
+    return names
+
+
+def write_result(result, folder: Path, summary: dict | None = None) -> None:
+    """Write the field files (nodes.csv, elements.csv, result.vtu) of a result into an existing folder,
+    and summary.json when ``summary`` is given."""
     import meshio
 
     m = result.mesh
-    summary = summary if summary is not None else result.summary()
-    write_json(folder / "summary.json", summary)
+    if summary is not None:
+        write_json(folder / "summary.json", summary)
     write_csv(folder / "nodes.csv", {
         "node": np.arange(m.n_nodes), "x_m": m.points[:, 0], "y_m": m.points[:, 1],
         "total_head_m": result.h, "pressure_head_m": result.pressure_head,
@@ -83,7 +102,7 @@ def write_result(result: Result, folder: Path, summary: dict | None = None) -> N
     c = m.points[m.triangles].mean(axis=1)
     write_csv(folder / "elements.csv", {
         "element": np.arange(m.n_elements), "zone": m.zone, "xc_m": c[:, 0], "yc_m": c[:, 1],
-        "dh_dx": g[:, 0], "dh_dy": g[:, 1], "vx_m_s": v[:, 0], "vy_m_s": v[:, 1]})
+        "dh_dx_m_per_m": g[:, 0], "dh_dy_m_per_m": g[:, 1], "vx_m_s": v[:, 0], "vy_m_s": v[:, 1]})
     ctype = "triangle" if m.order == 1 else "triangle6"
     pts3 = np.column_stack([m.points, np.zeros(m.n_nodes)])
     mesh = meshio.Mesh(
@@ -91,6 +110,6 @@ def write_result(result: Result, folder: Path, summary: dict | None = None) -> N
         point_data={"total_head_m": result.h, "pressure_head_m": result.pressure_head,
                     "pore_pressure_kPa": result.pore_pressure},
         cell_data={"zone": [m.zone.astype(np.int32)],
-                   "gradient": [np.column_stack([g, np.zeros(len(g))])],
+                   "head_gradient_m_per_m": [np.column_stack([g, np.zeros(len(g))])],
                    "darcy_velocity_m_s": [np.column_stack([v, np.zeros(len(v))])]})
     mesh.write(folder / "result.vtu")

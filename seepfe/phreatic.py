@@ -95,7 +95,7 @@ def seepage_faces(result) -> dict:
         nodes = np.unique(m.edges[on])
         y = m.points[:, 1]
         if b.kind == "head":
-            nodes = nodes[y[nodes] > b.head + 10 * sec.tol]
+            nodes = nodes[y[nodes] > b.head + sec.head_tol]
         leaving = nodes[act[nodes] & (result.reactions[nodes] < -1e-12 * scale)]
         ok = np.zeros(m.n_nodes, bool)
         ok[leaving] = True

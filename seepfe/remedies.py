@@ -37,13 +37,14 @@ from typing import Annotated, Literal, Optional, Union
 
 import numpy as np
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
-from shapely.geometry import LineString, MultiPolygon, Polygon, box
+from shapely.geometry import LineString, Polygon, box
 from shapely.ops import linemerge, unary_union
 
+from .conductivity import conductivity_tensor
 from .errors import SectionError
 from .schema import Conductivity, Finite, Positive, SectionSpec
 
-__all__ = ["apply", "describe", "report", "RELIEF_WELL_LIMITS", "CutoffWall", "LandsideBerm", "RiversideBlanket",
+__all__ = ["apply", "flows", "RELIEF_WELL_LIMITS", "CutoffWall", "LandsideBerm", "RiversideBlanket",
            "ToeDrain", "ReliefWells", "REMEDY_TYPES"]
 
 RELIEF_WELL_LIMITS = (
@@ -490,7 +491,6 @@ def _toe_drain(r: ToeDrain, spec, geo: _Geo, who: str):
 
 def _aquifer(geo: _Geo, spec: SectionSpec, x: float, who: str):
     """The most pervious zone crossed by the vertical at x: (name, kx m/s, top m, thickness m)."""
-    from .section import conductivity_tensor
     best = None
     v = geo.vertical(x)
     for n, m, p in zip(geo.names, geo.materials, geo.polys):
@@ -564,7 +564,6 @@ def _wells(r: ReliefWells, spec, geo: _Geo, data: dict, who: str, refine: list):
 
 
 def _tensor(m: dict | object):
-    from .section import conductivity_tensor
     return conductivity_tensor(m)
 
 
@@ -619,15 +618,17 @@ def _reboundary(boundaries: list[dict], new_outline, tol: float, surfaces: list[
 
 
 # --------------------------------------------------------------------------- entry points
-def apply(spec: SectionSpec, data: dict, raw, label: str = "<dict>") -> dict:
+def apply(spec: SectionSpec, data: dict, raw, label: str = "<dict>", notes: list | None = None) -> dict:
     """A new section dict with the remedies turned into zones, materials, boundaries and refinements.
 
     ``spec`` is the validated plain section, ``data`` its (resolved) dict, ``raw`` the ``remedies``
-    list. Raises SectionError (prefixed with label) naming the remedy and the fault.
+    list. ``notes``, when given, receives one dict per remedy: what it became (zones, elevations,
+    model figures, and under ``"boundaries"`` the names of the boundaries it made). Raises
+    SectionError (prefixed with label) naming the remedy and the fault.
     """
     try:
         rems = validate(raw)
-        return _apply(spec, data, rems, raw)
+        return _apply(spec, data, rems, raw, notes)
     except SectionError as e:
         raise SectionError(f"{label}: {e}") from None
 
@@ -669,8 +670,9 @@ def _apply(spec: SectionSpec, data: dict, rems: list, raw: list, notes: list | N
             lines = _merge(segs)
             if len(lines) != 1:
                 raise SectionError(f"{who}: the trench does not open onto the ground as one piece")
-            new_bounds.append({"name": _unique(r.name, [b["name"] for b in data.get("boundaries", [])]),
-                               "polyline": lines[0], "drain": True})
+            bname = _unique(r.name, [b["name"] for b in data.get("boundaries", [])])
+            new_bounds.append({"name": bname, "polyline": lines[0], "drain": True})
+            note["boundaries"] = [bname]
             refine.append({"polyline": lines[0], "size": max(min(r.width, r.depth) / 2, 1e-3)})
             note.update({"from_x_m": x, "to_x_m": xe, "bottom_m": lo})
         elif r.type == "relief_wells":
@@ -678,8 +680,9 @@ def _apply(spec: SectionSpec, data: dict, rems: list, raw: list, notes: list | N
             note.update(info)
             if keep_clear is not None:
                 clear.append(keep_clear)
-            new_bounds.append({"name": _unique(r.name, [b["name"] for b in data.get("boundaries", [])]),
-                               "polyline": [list(c) for c in out_line.coords], "seepage_face": True})
+            bname = _unique(r.name, [b["name"] for b in data.get("boundaries", [])])
+            new_bounds.append({"name": bname, "polyline": [list(c) for c in out_line.coords], "seepage_face": True})
+            note["boundaries"] = [bname]
         geo.refresh()
         if notes is not None:
             notes.append(note)
@@ -693,32 +696,18 @@ def _apply(spec: SectionSpec, data: dict, rems: list, raw: list, notes: list | N
     return data
 
 
-def describe(section) -> list[dict]:
-    """Per remedy of a loaded section: what it became (zones, elevations, model figures), for reports.
-
-    Relief wells carry their model resistance (s/m) and the stated limits of the approximation.
-    """
-    from . import params
-    work = params.resolve(section.data, section.source)
-    raw = work.pop("remedies", None)
-    if not raw:
-        return []
-    notes: list = []
-    _apply(SectionSpec.model_validate(work), work, validate(raw), raw, notes)
-    return notes
-
-
-def report(result) -> list[dict]:
-    """:func:`describe` plus figures from a solve; for relief wells (per the line-of-wells model):
-
+def flows(notes, flows: dict) -> list[dict]:
+    """The remedy notes of a section (``section.remedies``) with figures from a solve's boundary flows
+    (m3/s per m, + into the section). For relief wells (per the line-of-wells model):
     ``flow_m3_s_per_m`` (into the well line, per m of levee), ``flow_per_well_m3_s`` Q_w = q a,
     ``line_head_m`` (outlet + Q_w / (2 pi k W) ln(a / (2 pi r_w))), ``midway_head_m`` (the line
-    head + Q_w ln 2 / (2 pi k W), the highest head along the line, between wells), and ``limits``.
+    head + Q_w ln 2 / (2 pi k W), the highest head along the line, between wells), and ``limits``;
+    for toe drains the flow they take in (negative: out of the section).
     """
-    out = describe(result.section)
+    out = [dict(d) for d in notes]
     for d in out:
         if d["type"] == "relief_wells":
-            q = -float(result.flows.get(d["name"], 0.0))
+            q = -float(flows.get(d["name"], 0.0))
             Qw = q * d["spacing_m"]
             W = d["screen_top_m"] - d["screen_bottom_m"]
             line = d["outlet_elevation_m"] + q * d["resistance_s_per_m"] if q > 0 else None
@@ -726,5 +715,5 @@ def report(result) -> list[dict]:
                       "midway_head_m": (line + Qw * math.log(2.0) / (2 * math.pi * d["aquifer_kx_m_s"] * W))
                       if line is not None else None})
         elif d["type"] == "toe_drain":
-            d["flow_m3_s_per_m"] = float(result.flows.get(d["name"], 0.0))
+            d["flow_m3_s_per_m"] = float(flows.get(d["name"], 0.0))
     return out

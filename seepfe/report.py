@@ -21,9 +21,9 @@ from pathlib import Path
 import numpy as np
 
 from .errors import SeepfeError
-from .result import CAUTION
+from .about import CAUTION
 
-__all__ = ["build_report", "write_report", "write_pdf", "governing_values", "exit_profiles"]
+__all__ = ["build_report", "write_report", "write_pdf"]
 
 log = logging.getLogger("seepfe")
 
@@ -92,92 +92,37 @@ def _png_data(fig, dpi: int = 150) -> tuple[str, bytes]:
     return "data:image/png;base64," + base64.b64encode(data).decode("ascii"), data
 
 
-def exit_profiles(result) -> dict:
-    """{boundary name: exit-gradient checks} for the boundaries checked by default, when the result
-    offers ``exit_gradients`` (empty otherwise)."""
-    if not hasattr(result, "exit_gradients"):
-        return {}
-    try:
-        from .checks.exit import default_boundaries
-        names = default_boundaries(result.section)
-    except ImportError:
-        names = [b.name for b in result.section.spec.boundaries if b.kind in ("seepage_face", "drain")]
-    out = {}
-    for n in names:
-        try:
-            p = result.exit_gradients(n)
-        except (SeepfeError, KeyError, ValueError) as e:
-            log.info("no exit-gradient checks along '%s': %s", n, e)
-            continue
-        if p is not None and len(getattr(p, "x", [])) >= 2:
-            out[n] = p
-    return out
-
-
-def governing_values(result, net=None, profiles: dict | None = None) -> dict:
-    """The values an engineer reads first: seepage, flow-net numbers, least factor of safety,
-    largest exit gradient, balance.  Units in the keys."""
-    from .flownet import flow_net
-    net = net or flow_net(result)
-    bal = result.balance
-    q = 0.5 * (bal["inflow_m3_s_per_m"] + bal["outflow_m3_s_per_m"])
-    g = {"seepage_m3_s_per_m": q, "seepage_m3_day_per_m": q * 86400.0,
-         "head_loss_m": net.head_loss, "flow_net_Nf": net.n_channels, "flow_net_Nd": net.n_drops,
-         "flow_net_square": net.squares, "balance_relative_error": bal["relative_error"],
-         "head_min_m": float(result.h.min()), "head_max_m": float(result.h.max())}
-    profiles = exit_profiles(result) if profiles is None else profiles
-    least, imax = None, None
-    for name, p in profiles.items():
-        fs = np.asarray(p.fs, float)
-        fz = np.where(np.isfinite(fs), fs, np.inf)
-        if len(fz) and np.isfinite(fz).any():
-            k = int(np.argmin(fz))
-            d = getattr(p, "distance_from_toe", None)
-            cand = {"value": float(fz[k]), "boundary": name, "x_m": float(p.x[k]),
-                    "distance_from_toe_m": float(d[k]) if d is not None else None}
-            if least is None or cand["value"] < least["value"]:
-                least = cand
-        gr = np.asarray(p.gradient, float)
-        ga = np.where(np.isfinite(gr), gr, -np.inf)
-        if len(ga) and np.isfinite(ga).any():
-            k = int(np.argmax(ga))
-            cand = {"value_m_per_m": float(ga[k]), "boundary": name, "x_m": float(p.x[k])}
-            if imax is None or cand["value_m_per_m"] > imax["value_m_per_m"]:
-                imax = cand
-    g["least_factor_of_safety"] = least
-    g["largest_exit_gradient"] = imax
-    passes = [bool(np.all(np.asarray(p.passes, bool))) for p in profiles.values() if hasattr(p, "passes")]
-    g["exit_checks_pass"] = (all(passes) if passes else None)
-    return g
-
-
-def build_report(result, figures=None, *, net=None, profiles: dict | None = None, show_mesh: bool = True,
-                 arrows: bool = True, generated: str | None = None, checks=None, summary: dict | None = None) -> str:
-    """The report as one HTML string.
+def build_report(analysis, figures=None, *, show_mesh: bool = True, arrows: bool = True,
+                 generated: str | None = None) -> str:
+    """The report as one HTML string, from an :class:`seepfe.Analysis` (the verdict, the checks and the
+    hand methods are the analysis's own; nothing is recomputed here).
 
     Parameters
     ----------
-    result : seepfe.Result
+    analysis : seepfe.Analysis (a Result is analysed first)
     figures : iterable of :class:`seepfe.plot.FigureItem`, optional
         Default: the standard set (:func:`seepfe.plot.figure_set`), with the mesh and velocity arrows.
     generated : timestamp text (default: now, UTC).
     """
-    from . import __version__
-    from .flownet import flow_net
+    from .about import __version__
+    from .analysis import Analysis, analyse
+    from .checks.methods import QUANTITIES
     from .plot import figure_set
     from .plot.base import boundary_label
+    if not isinstance(analysis, Analysis):
+        analysis = analyse(analysis)
+    result = analysis.result
     sec, m = result.section, result.mesh
     spec = sec.spec
-    net = net or flow_net(result)
-    if checks is None:
-        from .checks.report import run_checks
-        checks = run_checks(result)
-    profiles = dict(checks.exits) if profiles is None else profiles
-    gov = governing_values(result, net, profiles)
-    summary = summary if summary is not None else result.summary()
+    net = analysis.flow_net
+    profiles = analysis.exits
+    summary = analysis.to_dict()
+    gv = analysis.governing
+    bal = result.balance
+    qs = 0.5 * (bal["inflow_m3_s_per_m"] + bal["outflow_m3_s_per_m"])
     generated = generated or _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
     if figures is None:
-        figures = figure_set(result, show_mesh=show_mesh, arrows=arrows, net=net)
+        figures = figure_set(result, show_mesh=show_mesh, arrows=arrows, analysis=analysis)
     title = spec.title or sec.source
     P = []
     P.append(f"<h1>{_e(title)}</h1>")
@@ -187,9 +132,9 @@ def build_report(result, figures=None, *, net=None, profiles: dict | None = None
 
     # governing values
     P.append("<h2>Governing values</h2>")
-    cards = [(f"{_num(gov['seepage_m3_s_per_m'], '{:.3e}')} m³/s per m",
-              f"seepage through the section ({_num(gov['seepage_m3_day_per_m'], '{:.3g}')} m³/day per m)"),
-             (f"{_num(gov['head_loss_m'], '{:.3f}')} m", "total head loss H across the section")]
+    cards = [(f"{_num(qs, '{:.3e}')} m³/s per m",
+              f"seepage through the section ({_num(qs * 86400.0, '{:.3g}')} m³/day per m)"),
+             (f"{_num(net.head_loss, '{:.3f}')} m", "total head loss H across the section")]
     if net.squares:
         cards.append((f"Nf / Nd = {net.n_channels:.2f} / {net.n_drops}",
                       f"flow net: q = k H Nf/Nd = {_num(net.k_ref * net.head_loss * net.shape_factor, '{:.3e}')} m³/s per m "
@@ -197,21 +142,23 @@ def build_report(result, figures=None, *, net=None, profiles: dict | None = None
     else:
         cards.append((f"Nf = {net.n_channels:.0f}, Nd = {net.n_drops}",
                       "flow net: channels of equal flow (zones differ in k)"))
-    lf = gov["least_factor_of_safety"]
-    if lf is not None:
-        ok = gov["exit_checks_pass"]
-        verdict = "" if ok is None else (' <span class="pass">passes</span>' if ok else ' <span class="fail">fails</span>')
-        where = (f" at {lf['distance_from_toe_m']:.1f} m from the toe" if lf.get("distance_from_toe_m") is not None
-                 else f" at x = {lf['x_m']:.1f} m")
-        cards.append((_Raw(f"{_num(lf['value'], '{:.2f}')}{verdict}"),
-                      f"least factor of safety (heave/uplift) along '{lf['boundary']}'{where}"))
-    im = gov["largest_exit_gradient"]
-    if im is not None:
-        cards.append((f"{_num(im['value_m_per_m'], '{:.3f}')} m/m",
-                      f"largest vertical exit gradient along '{im['boundary']}' at x = {im['x_m']:.1f} m"))
-    cards.append((f"{gov['balance_relative_error']:.1e}", "relative flow-balance error (in − out) / in"))
+    cls = {"pass": "pass", "fail": "fail"}.get(gv["verdict"], "fail")
+    verdict = f' <span class="{cls}">{_e(gv["verdict"])}</span>'
+    if gv["fs"] is not None:
+        where = (f" at {gv['distance_from_toe_m']:.1f} m from the toe" if gv.get("distance_from_toe_m") is not None
+                 else f" at x = {gv['x_m']:.1f} m")
+        cards.append((_Raw(f"{_num(gv['fs'], '{:.2f}')}{verdict}"),
+                      f"least factor of safety ({gv['mode']}) along '{gv['boundary']}'{where}"))
+    else:
+        cards.append((_Raw(f"–{verdict}"), "least factor of safety: " + gv["why"]))
+    if gv["exit_gradient_max"] is not None:
+        cards.append((f"{_num(gv['exit_gradient_max'], '{:.3f}')} m/m",
+                      f"largest exit gradient along '{gv['exit_gradient_boundary']}' at x = "
+                      f"{gv['exit_gradient_x_m']:.1f} m"))
+    cards.append((f"{bal['relative_error']:.1e}", "relative flow-balance error (in − out) / in"))
     P.append('<div class="gov" id="governing">' + "".join(
         f"<div><b>{v if isinstance(v, _Raw) else _e(v)}</b><span>{_e(t)}</span></div>" for v, t in cards) + "</div>")
+    P.append(f'<p id="verdict"><b>Verdict: <span class="{cls}">{_e(gv["verdict"])}</span>.</b> {_e(gv["why"])}</p>')
     if not profiles:
         P.append('<p class="note">No exit-gradient checks in this result (no seepage face to check, or the '
                  "checks are not available in this version).</p>")
@@ -284,34 +231,35 @@ def build_report(result, figures=None, *, net=None, profiles: dict | None = None
         P.append("<h2>Exit-gradient, heave and uplift checks</h2>")
         rows = []
         for name, p in profiles.items():
-            gv = p.governing if hasattr(p, "governing") else {}
-            mf = gv.get("min_fs") or {}
-            mg = gv.get("max_gradient") or {}
-            mb = gv.get("max_blanket_gradient") or {}
-            ok = gv.get("passes")
-            rows.append([name, len(p.x), _num(mg.get("value_m_per_m"), "{:.3f}"), _num(mb.get("value_m_per_m"), "{:.3f}"),
-                         _num(mf.get("value"), "{:.2f}"), mf.get("kind", "–"), _num(mf.get("distance_from_toe_m"), "{:.1f}"),
-                         _num(gv.get("fails_within_m_of_toe"), "{:.1f}"),
-                         _Raw('<span class="pass">passes</span>' if ok else '<span class="fail">fails</span>')
-                         if ok is not None else "–"])
-        P.append(_table(["boundary", "points", "largest exit gradient (m/m)", "largest top-stratum gradient (m/m)",
-                         "least FS (-)", "governed by", "at distance from toe (m)", "fails up to (m from toe)",
-                         "verdict"], rows, {1, 2, 3, 4, 6, 7}))
-        crit = next((getattr(p, "criteria", None) for p in profiles.values() if getattr(p, "criteria", None)), None)
+            g = p.governing
+            rows.append([name, g["points"], _num(g["exit_gradient_max"], "{:.3f}"),
+                         _num(g["surface_gradient_max"], "{:.3f}"), _num(g["fs"], "{:.2f}"), g["mode"] or "–",
+                         _num(g["distance_from_toe_m"], "{:.1f}"), _num(g["top_stratum_thickness_m"], "{:.2f}"),
+                         _num(g["fails_within_m_of_toe"], "{:.1f}"),
+                         _Raw(f'<span class="{"pass" if g["verdict"] == "pass" else "fail"}">{_e(g["verdict"])}</span>')])
+        P.append(_table(["boundary", "points", "largest exit gradient (m/m)", "largest surface gradient (m/m)",
+                         "least FS (-)", "governed by", "at distance from toe (m)", "top stratum (m)",
+                         "fails up to (m from toe)", "verdict"], rows, {1, 2, 3, 4, 6, 7, 8}))
+        crit = gv.get("criteria")
         if crit:
             P.append(_table(["criterion", "value"], [[k.replace("_", " "), v] for k, v in crit.items()], {}))
-        notes = [n for p in profiles.values() for n in getattr(p, "notes", [])]
-        for n in dict.fromkeys(notes + list(checks.notes)):
+        notes = [n for p in profiles.values() for n in p.notes]
+        for n in dict.fromkeys(notes + list(analysis.notes)):
             P.append(f'<p class="note">{_e(n)}</p>')
 
     # hand methods beside the finite elements
-    hrows = checks.hand_rows()
-    na = checks.not_applicable()
+    hrows, na = [], []
+    for mth in analysis.hand:
+        if not mth.applies:
+            na.append(f"{mth.title}: not applicable: {mth.why}")
+            continue
+        for q, unit, label in QUANTITIES[mth.method]:
+            hv, fv = mth.values.get(q, (None, None))
+            hrows.append([f"{mth.title}: {label} ({unit})", _num(hv), _num(fv), mth.why])
     if hrows or na:
         P.append("<h2>Hand methods beside the finite elements</h2>")
         if hrows:
-            P.append(_table(["method: quantity", "hand method", "finite elements", "remark"],
-                            [[r[0], r[1], r[2], r[3]] for r in hrows], {1, 2}))
+            P.append(_table(["method: quantity", "hand method", "finite elements", "remark"], hrows, {1, 2}))
         for line in na:
             P.append(f'<p class="note">{_e(line)}</p>')
 
@@ -348,21 +296,23 @@ def _close(fig) -> None:
     fig.clear()
 
 
-def write_report(result, folder, *, show_mesh: bool = True, arrows: bool = True, formats=("png", "svg"),
-                 checks=None, summary: dict | None = None) -> Path:
-    """Write ``report.html`` and every figure (PNG and SVG) into an existing folder; return the HTML path."""
+def write_report(analysis, folder, *, show_mesh: bool = True, arrows: bool = True, formats=("png", "svg")) -> Path:
+    """Write ``report.html`` and every figure (PNG and SVG) into an existing folder; return the HTML path.
+
+    ``analysis``: a :class:`seepfe.Analysis` (a Result is analysed first)."""
+    from .analysis import Analysis, analyse
     from .plot import figure_set, save_figure
-    from .flownet import flow_net
+    if not isinstance(analysis, Analysis):
+        analysis = analyse(analysis)
     folder = Path(folder)
-    net = flow_net(result)
     (folder / "figures").mkdir(exist_ok=True)
     items = []
-    for item in figure_set(result, show_mesh=show_mesh, arrows=arrows, net=net):
+    for item in figure_set(analysis.result, show_mesh=show_mesh, arrows=arrows, analysis=analysis):
         paths = save_figure(item.fig, folder / "figures" / item.name, formats=formats)
         item.png = next((p.read_bytes() for p in paths if p.suffix == ".png"), None)   # embed what was written
         _close(item.fig)
         items.append(item)
-    text = build_report(result, figures=items, net=net, checks=checks, summary=summary)
+    text = build_report(analysis, figures=items)
     path = folder / "report.html"
     path.write_text(text, encoding="utf-8")
     return path

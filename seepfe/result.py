@@ -13,19 +13,20 @@ import numpy as np
 import shapely
 
 from . import fem
+from .about import CAUTION
 from .drains import drain_zone_nodes
 from .mesh import Mesh
 from .section import Section
 
-__all__ = ["Result"]
-
-CAUTION = ("These results support, and never replace, the judgement of a licensed engineer; "
-           "local codes and agency criteria govern.")
+__all__ = ["Result", "CAUTION"]
 
 
 @dataclass(eq=False)
 class Result:
-    """Steady head field on a mesh of a section, with what is derived from it.
+    """Steady head field on a mesh of a section, and field queries on it (heads, gradients, flows).
+
+    A plain container of the solution: the checks, verdicts and hand methods are computed from it by
+    :func:`seepfe.analyse`.
 
     Attributes
     ----------
@@ -193,7 +194,7 @@ class Result:
     @cached_property
     def _outline(self):
         """The meshed outline (a polygon slightly grown by the geometric tolerance), prepared."""
-        poly = self.section.outline.buffer(self.section.tol * 10)
+        poly = self.section.outline.buffer(self.section.length_tol)
         shapely.prepare(poly)
         return poly
 
@@ -212,72 +213,48 @@ class Result:
 
     # ----------------------------------------------------------------- underseepage checks
     def exit_gradients(self, name: str, spacing: float | None = None, depth: float | None = None):
-        """Exit gradients, heave and uplift factors of safety along the named boundary.
+        """Exit gradients, heave and uplift factors of safety along the named boundary (the issue-3 API).
 
-        Returns a :class:`seepfe.checks.ExitChecks` (.x, .y m; .gradient, .blanket_gradient m/m;
-        .fs -; .to_csv(path)). ``spacing`` (m) adds check points between the nodes; ``depth`` (m)
-        sets the base of the top stratum. See :mod:`seepfe.checks`.
+        The same as :func:`seepfe.checks.exit_gradients` (``result`` first); for the checks of a whole
+        section, with the governing values and the verdict, use :func:`seepfe.analyse`. Returns a
+        :class:`seepfe.checks.ExitChecks` (.x, .y m; .gradient, .blanket_gradient m/m; .fs -; .to_csv(path)).
         """
-        from .checks import exit_gradients
+        from .checks.exit import exit_gradients     # kept for the pinned issue-3 API; checks never import result
         return exit_gradients(self, name, spacing=spacing, depth=depth)
 
     # ----------------------------------------------------------------- reporting
     def summary(self) -> dict:
-        """Plain-data summary: flows by boundary, balance, mesh and solver figures, input hash."""
-        from . import __version__
+        """Plain data of the solve itself: flows by boundary, balance, mesh and solver figures, input hash.
+        (summary.json, with the checks and verdict, is ``seepfe.analyse(result).to_dict()``.)"""
+        from .about import __version__
         return {
             "seepfe_version": __version__,
             "title": self.section.title,
             "source": self.section.source,
             "input_sha256": self.section.input_hash,
-            "units": {"length": "m", "head": "m", "flow": "m3/s per m", "pressure": "kPa",
-                      "conductivity": "m/s"},
             "flows_m3_s_per_m": self.flows,
             "balance": self.balance,
             "head_range_m": [float(self.h.min()), float(self.h.max())],
             "mesh": dict(self.mesh.stats),
             "solver": dict(self.solver_info),
-            "phreatic": _phreatic_summary(self),
-            **({"remedies": _remedies_summary(self)} if self.section.data.get("remedies") else {}),
-            "caution": CAUTION,
         }
 
     def __str__(self) -> str:
+        """A short summary of the solve itself (no checks run behind a print: see seepfe.analyse)."""
         s = self.summary()
+        sv = s["solver"]
         lines = [f"{self.section.title or self.section.source}",
-                 f"  mesh: {s['mesh']['elements']} P{self.mesh.order} triangles, {s['mesh']['nodes']} nodes",
+                 f"  mesh: {s['mesh']['elements']} P{self.mesh.order} triangles, {s['mesh']['nodes']} nodes; "
+                 f"solver {sv.get('backend', '?')}" + ("" if sv.get("converged", True) else ", NOT CONVERGED"),
                  "  flows (m3/s per m, + into the section):"]
         for k, v in s["flows_m3_s_per_m"].items():
             lines.append(f"    {k:<20s} {v:+.4e}")
         lines.append(f"  balance: relative error {s['balance']['relative_error']:.2e}")
         lines.append(f"  head range: {s['head_range_m'][0]:.3f} to {s['head_range_m'][1]:.3f} m")
-        for name, f in s.get("phreatic", {}).get("seepage_faces", {}).items():
-            if f.get("exit_point_m"):
-                x, y = f["exit_point_m"]
-                lines.append(f"  phreatic surface leaves through '{name}' at x = {x:.2f} m, y = {y:.2f} m")
-        from .checks.report import run_checks
-        for name, ex in run_checks(self).exits.items():
-            g = ex.governing
-            mf, mg = g.get("min_fs") or {}, g.get("max_gradient") or {}
-            if mf:
-                lines.append(f"  '{name}': least FS {mf['value']:.2f} ({mf['kind']}) at x = {mf['x_m']:.2f} m; "
-                             f"largest exit gradient {mg.get('value_m_per_m', float('nan')):.3f} at "
-                             f"x = {mg.get('x_m', float('nan')):.2f} m; "
-                             + ("passes the criteria" if g.get("passes") else
-                                f"fails the criteria within {g.get('fails_within_m_of_toe', 0):.1f} m of the toe"))
+        lines.append("  checks and verdict: seepfe.analyse(result)")
         lines.append(f"  {CAUTION}")
         return "\n".join(lines)
 
     def __repr__(self) -> str:
         return (f"<Result {self.section.title!r}: {self.mesh.n_elements} elements, "
                 f"balance {self.balance['relative_error']:.1e}>")
-
-
-def _remedies_summary(result) -> list:
-    from . import remedies
-    return remedies.report(result)
-
-
-def _phreatic_summary(result) -> dict:
-    from . import phreatic
-    return phreatic.summary(result)

@@ -10,7 +10,6 @@ from __future__ import annotations
 import difflib
 import hashlib
 import json
-import math
 import os
 import re
 import types
@@ -24,25 +23,11 @@ from pydantic import BaseModel, ValidationError
 from shapely.geometry import Polygon
 
 from . import geometry
+from .conductivity import conductivity_tensor
 from .errors import SectionError
 from .schema import BoundarySpec, MaterialSpec, SectionSpec
 
 __all__ = ["Section", "load_section", "conductivity_tensor"]
-
-
-def conductivity_tensor(m: MaterialSpec) -> np.ndarray:
-    """The 2x2 conductivity tensor (m/s) of a material: ``R diag(kx, ky) R^T``.
-
-    >>> conductivity_tensor(MaterialSpec(kx=4.0, ky=1.0, angle=90.0)).round(12)
-    array([[1., 0.],
-           [0., 4.]])
-    """
-    if m.k is not None:
-        return np.array([[m.k, 0.0], [0.0, m.k]])
-    a = math.radians(m.angle)
-    c, s = math.cos(a), math.sin(a)
-    R = np.array([[c, -s], [s, c]])
-    return R @ np.diag([m.kx, m.ky]) @ R.T
 
 
 @dataclass(frozen=True, eq=False)
@@ -61,6 +46,7 @@ class Section:
     extent: float = 0.0                       # largest side of the bounding box, m
     tol: float = 0.0                          # geometric tolerance, m
     graph: geometry.Graph = field(default=None, repr=False)
+    remedies: tuple = field(default=(), repr=False)   # per remedy: what it became (seepfe.remedies.apply)
 
     @property
     def title(self) -> str:
@@ -86,6 +72,18 @@ class Section:
 
     def zone_material(self, zone_index: int) -> MaterialSpec:
         return self.spec.materials[self.spec.zones[zone_index].material]
+
+    @property
+    def length_tol(self) -> float:
+        """Length tolerance, m: two points closer than this are one point, a point this close to a line
+        lies on it (ten times the geometric tolerance ``tol``, itself 1e-7 of the extent)."""
+        return 10.0 * self.tol
+
+    @property
+    def head_tol(self) -> float:
+        """Head tolerance, m: a total head within this of an elevation equals it (h = y tests, water
+        levels against the ground). Named apart from ``length_tol`` though equal today."""
+        return 10.0 * self.tol
 
     @property
     def gamma_w(self) -> float:
@@ -290,14 +288,15 @@ def load_section(path_or_dict) -> Section:
         spec = SectionSpec.model_validate(work)
     except ValidationError as e:
         raise SectionError(_format_pydantic(e, work, label)) from None
+    notes: list = []
     if measures is not None:
-        work = remedies.apply(spec, work, measures, label)
+        work = remedies.apply(spec, work, measures, label, notes)
         try:
             spec = SectionSpec.model_validate(work)
         except ValidationError as e:
             raise SectionError(_format_pydantic(e, work, label) + " (after applying the remedies)") from None
     try:
-        return _build(spec, data, label)
+        return _build(spec, data, label, tuple(notes))
     except SectionError as e:
         raise SectionError(f"{label}: {e}") from None
 
@@ -320,7 +319,7 @@ def _check_coordinates(spec: SectionSpec) -> None:
                                    f"must lie within +-{MAX_COORDINATE:.0e} m")
 
 
-def _build(spec: SectionSpec, data: dict, label: str) -> Section:
+def _build(spec: SectionSpec, data: dict, label: str, notes: tuple = ()) -> Section:
     # names
     names = [z.name for z in spec.zones]
     for n in names:
@@ -362,4 +361,4 @@ def _build(spec: SectionSpec, data: dict, label: str) -> Section:
     graph = geometry.build_graph(names, polys, outline, bnames, blines, tol,
                                  barriers=tuple(zip(rnames, rlines)))
     return Section(spec=spec, source=label, data=data, input_hash=_hash(data), polygons=tuple(polys),
-                   outline=outline, extent=extent, tol=tol, graph=graph)
+                   outline=outline, extent=extent, tol=tol, graph=graph, remedies=notes)

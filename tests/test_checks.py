@@ -12,11 +12,14 @@ import pytest
 
 import seepfe
 from seepfe.checks import critical_gradient, handmethods as hm
-from seepfe.checks.report import run_checks
 from seepfe.schema import MaterialSpec
 
-KHOSLA = "Khosla exit gradient (Khosla et al. 1936)"
-TERZAGHI = "Terzaghi heave prism (Terzaghi 1943)"
+KHOSLA = "khosla"
+TERZAGHI = "terzaghi_prism"
+
+
+def _inp(m, name):
+    return m.inputs[name]["value"]
 
 
 # ------------------------------------------------------------------------------- critical gradient
@@ -90,10 +93,10 @@ def test_terzaghi_prism_against_conformal_heads(pile):
     # against the closed-form head of the sheet-pile problem (Harr 1962, ch. 5):
     # h = (H / pi) Re arccos(w / s), w = sqrt(z^2 + s^2) (here the downstream half, h = 0 at the exit).
     H, s = 4.0, 2.0
-    rep = run_checks(pile[0.05])
-    t = rep.hand[TERZAGHI]
-    assert t["applicable"]
-    p = t["prisms"][0]
+    rep = seepfe.analyse(pile[0.05])
+    t = rep.hand_method(TERZAGHI)
+    assert t.applies
+    p = t.details["prisms"][0]
     x = np.linspace(0.0, s / 2, 2001)[1:]
     w = np.sqrt((x - 1j * s) ** 2 + s**2)
     h_a = float(np.mean(H / np.pi * np.real(np.arccos(w / s))))
@@ -128,11 +131,11 @@ def test_khosla_exit_gradient_floor_with_downstream_cutoff():
     g_e = H / (d * math.pi * math.sqrt(lam))
     out = {}
     for fine in (0.1, 0.05):
-        rep = run_checks(seepfe.solve(_floor_with_cutoff(fine=fine)))
-        k = rep.hand[KHOSLA]
-        assert k["applicable"], k.get("reason")
-        assert k["exit_gradient"] == pytest.approx(g_e, rel=1e-12)
-        out[fine] = k["fe_exit_gradient"]
+        rep = seepfe.analyse(seepfe.solve(_floor_with_cutoff(fine=fine)))
+        k = rep.hand_method(KHOSLA)
+        assert k.applies, k.why
+        assert k.values["exit_gradient"][0] == pytest.approx(g_e, rel=1e-12)
+        out[fine] = k.values["exit_gradient"][1]
     # Tolerance 1 %, from measurements on this section: halving the element size at the cutoff
     # changes the FE value by 0.03 %; depth and width 30 -> 120 m change it by 0.3 %; the cutoff's
     # thickness t (needed without a barrier element) lowers it by about 8 t/d (-0.4 % at t = 0.05 m,
@@ -141,9 +144,9 @@ def test_khosla_exit_gradient_floor_with_downstream_cutoff():
     assert out[0.05] == pytest.approx(g_e, rel=0.01)
     # Lane's weighted creep along the floor and both faces of the cutoff (Lane 1935):
     # L_w = 2 d + t + (b - t) / 3 (faces vertical, floor and tip horizontal)
-    lane = rep.hand["Lane weighted creep (Lane 1935)"]
-    assert lane["applicable"]
-    assert lane["weighted_m"] == pytest.approx(2 * d + (b - 0.05) / 3 + 0.05 / 3, rel=1e-9)
+    lane = rep.hand_method("lane")
+    assert lane.applies
+    assert _inp(lane, "weighted_m") == pytest.approx(2 * d + (b - 0.05) / 3 + 0.05 / 3, rel=1e-9)
 
 
 def test_khosla_exit_gradient_with_a_barrier():
@@ -159,21 +162,21 @@ def test_khosla_exit_gradient_with_a_barrier():
                           {"name": "downstream", "polyline": [[b, 0], [b + T, 0]], "seepage_face": True}],
            "mesh": {"size": T / 12, "order": 2, "refine": [{"polyline": [[b, 0], [b, -d]], "size": 0.1, "width": 0.5},
                                                           {"point": [0, 0], "size": 0.1}]}}
-    rep = run_checks(seepfe.solve(sec))
-    k = rep.hand[KHOSLA]
-    assert k["applicable"], k.get("reason")
-    assert k["fe_exit_gradient"] == pytest.approx(g_e, rel=0.01)
+    rep = seepfe.analyse(seepfe.solve(sec))
+    k = rep.hand_method(KHOSLA)
+    assert k.applies, k.why
+    assert k.values["exit_gradient"][1] == pytest.approx(g_e, rel=0.01)
     assert any(c["source"] == "barrier 'cutoff'" for c in rep.cutoffs)
     # the face of the barrier is a right-angled corner: finite gradient, no 'singular' note
     assert not any("singular" in n for n in rep.exits["downstream"].notes)
     # Lane (1935): floor b horizontal, both faces of the barrier vertical
-    assert rep.hand["Lane weighted creep (Lane 1935)"]["weighted_m"] == pytest.approx(b / 3 + 2 * d)
+    assert _inp(rep.hand_method("lane"), "weighted_m") == pytest.approx(b / 3 + 2 * d)
 
 
 def test_khosla_not_applicable_on_shallow_foundation():
-    rep = run_checks(seepfe.solve(_floor_with_cutoff(T=12.0, fine=0.25)))
-    k = rep.hand[KHOSLA]
-    assert not k["applicable"] and "infinitely deep" in k["reason"]
+    rep = seepfe.analyse(seepfe.solve(_floor_with_cutoff(T=12.0, fine=0.25)))
+    k = rep.hand_method(KHOSLA)
+    assert not k.applies and "infinitely deep" in k.why
 
 
 # ------------------------------------------------------------------------------- mesh independence
@@ -240,5 +243,5 @@ def test_cli_solve_writes_checks(tmp_path, capsys):
     text = capsys.readouterr().out
     assert "underseepage checks" in text and "Khosla" in text and seepfe.CAUTION in text
     s = json.loads((out / "summary.json").read_text())
-    assert s["checks"]["exits"]["downstream"]["governing"]["max_gradient"]["value_m_per_m"] > 0
+    assert s["exits"]["downstream"]["governing"]["surface_gradient_max"] > 0
     assert (out / "checks_downstream.csv").exists()

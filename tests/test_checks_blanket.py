@@ -17,9 +17,19 @@ import math
 import pytest
 
 import seepfe
-from seepfe.checks.report import run_checks
 
-BT = "blanket theory (EM 1110-2-1913 App. B)"
+
+
+def _d(m):
+    """A hand method as the flat dict the checks below read (inputs, hand and FE values)."""
+    d = {"applicable": m.applies, "reason": m.why, **{k: v["value"] for k, v in m.inputs.items()}}
+    fe = {}
+    for q, (hv, fv) in m.values.items():
+        fe[q] = fv
+    d["fe"] = {"h0_m": fe.get("h0_m"), "i0": fe.get("top_stratum_gradient"), "q_m3_s_per_m": fe.get("q_m3_s_per_m")}
+    if m.applies and "fs_uplift" in m.values:
+        d["fs"] = m.values["fs_uplift"][0]
+    return d
 
 
 def _levee(kb=1e-7, kf=1e-4, z=1.0, d=20.0, L1=200.0, L3=300.0, H=4.0, size=4.0, fine=1.0, d70=None):
@@ -40,11 +50,11 @@ def _levee(kb=1e-7, kf=1e-4, z=1.0, d=20.0, L1=200.0, L3=300.0, H=4.0, size=4.0,
 
 @pytest.fixture(scope="module")
 def report():
-    return run_checks(seepfe.solve(_levee(d70=2.0e-4)))
+    return seepfe.analyse(seepfe.solve(_levee(d70=2.0e-4)))
 
 
 def test_blanket_theory_against_fe(report):
-    b = report.hand[BT]
+    b = _d(report.hand_method("blanket_theory"))
     assert b["applicable"], b.get("reason")
     # the geometry the checks read from the section
     assert b["L2_m"] == pytest.approx(40.0, abs=1e-6)
@@ -69,19 +79,19 @@ def test_blanket_theory_against_fe(report):
 
 def test_fe_exit_checks_agree_with_toe_values(report):
     ex = report.exits["landside"]
-    b = report.hand[BT]
+    b = _d(report.hand_method("blanket_theory"))
     i = int(abs(ex.x - 20.0).argmin())
     assert ex.blanket_gradient[i] == pytest.approx(b["fe"]["i0"], rel=1e-3)
-    assert ex.governing["min_fs"]["x_m"] == pytest.approx(20.0, abs=1.0)   # least FS at the toe
-    assert not ex.governing["passes"]                                      # FS ~ 0.5 < 1.6
+    assert ex.governing["x_m"] == pytest.approx(20.0, abs=1.0)   # least FS at the toe
+    assert ex.governing["verdict"] == "fail"                      # FS ~ 0.5 < 1.6
 
 
 def test_sellmeijer_beside_blanket(report):
     # Sellmeijer et al. (2011) revised rule, with the section's seepage length x1 + L2 and D = d.
     # Checked against the rule written out here (coefficients from memory, as in the module).
-    s = report.hand["Sellmeijer piping (Sellmeijer et al. 2011)"]
+    s = _d(report.hand_method("sellmeijer"))
     assert s["applicable"], s.get("reason")
-    b = report.hand[BT]
+    b = _d(report.hand_method("blanket_theory"))
     L, D, d70, k = b["x1_m"] + 40.0, 20.0, 2.0e-4, 1e-4
     kappa = 1.33e-6 * k / 9.81
     FR = 0.25 * 16.5 / 9.81 * math.tan(math.radians(37.0))
@@ -94,7 +104,7 @@ def test_sellmeijer_beside_blanket(report):
 def test_blanket_theory_says_when_it_does_not_hold():
     # a 'blanket' only 3 times less pervious than the layer below is no top stratum at the default
     # contrast of 10: the theory is not applied and the reason is given instead of a number
-    rep = run_checks(seepfe.solve(_levee(kb=3e-5, size=8.0, fine=2.0)))
-    b = rep.hand[BT]
+    rep = seepfe.analyse(seepfe.solve(_levee(kb=3e-5, size=8.0, fine=2.0)))
+    b = _d(rep.hand_method("blanket_theory"))
     assert not b["applicable"] and "top stratum" in b["reason"]
-    assert "not applicable" in rep.not_applicable()[0]
+    assert "not applicable" in rep.text()

@@ -175,7 +175,7 @@ def test_relief_wells_lower_toe_head_by_line_of_wells_formula():
     # closer wells draw the toe head down further
     closer = copy.deepcopy(_section([wells | {"spacing": 7.5}]))
     assert _toe_head(seepfe.solve(closer)) < _toe_head(r1)
-    info = remedies.report(r1)[0]
+    info = seepfe.analyse(r1).remedies[0]
     assert info["type"] == "relief_wells" and "midway between wells" in info["limits"]
     assert info["line_head_m"] == pytest.approx(0.2 + dH, rel=1e-9)
     # Muskat: midway between wells the head is higher by Q_w ln 2 / (2 pi k W)

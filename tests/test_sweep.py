@@ -51,9 +51,7 @@ def stage_at(fs, ks=KS, kb=KB):
 
 
 def _fs_direct(section):
-    r = seepfe.solve(section)
-    from seepfe.sweep.case import exit_profile
-    return float(np.min(exit_profile(r, "surface")["fs"]))
+    return seepfe.analyse(seepfe.solve(section), ["surface"]).governing["fs"]
 
 
 # --------------------------------------------------------------------------- table
@@ -64,15 +62,15 @@ def test_table_columns_units_and_values_against_series_flow(tmp_path):
     assert rep.complete and len(rep.table) == 5 and rep.solved == 4     # the base k case repeats: solved once
     hdr = (tmp_path / "s" / "results" / "table.csv").read_text().splitlines()[0].split(",")
     for col in ("boundaries.base.head_m", "materials.sand.k_m_s", "flow_base_m3_s_per_m", "head_blanket_base_m",
-                "exit_gradient_max", "fs_min", "fs_min_x_m", "fs_check"):
+                "exit_gradient_max", "fs", "fs_x_m", "fs_mode", "verdict", "why"):
         assert col in hdr
     for r in rep.table:
         H, ks = r["boundaries.base.head_m"], r["materials.sand.k_m_s"]
         q = KB * H / (TB + TS * KB / ks) * 2.0                              # series flow, 2 m wide
         assert r["flow_base_m3_s_per_m"] == pytest.approx(q, rel=1e-6)
         assert r["head_blanket_base_m"] == pytest.approx(H * TB / (TB + TS * KB / ks), rel=1e-6)
-        assert r["fs_min"] == pytest.approx(fs_exact(H, ks), rel=1e-4)
-        assert r["fs_check"] == ("pass" if fs_exact(H, ks) >= 1.5 else "fail")
+        assert r["fs"] == pytest.approx(fs_exact(H, ks), rel=1e-4)
+        assert r["verdict"] == ("pass" if fs_exact(H, ks) >= 1.5 else "fail")
     files = set(os.listdir(tmp_path / "s" / "results"))
     assert {"table.csv", "sweep.json", "vs_boundaries.base.head.png", "vs_materials.sand.k.svg"} <= files
 
@@ -198,7 +196,7 @@ def test_killed_subprocess_then_rerun(tmp_path):
     rep = run_sweep(sec, sw, out=out, workers=1, plots=False)
     assert rep.complete and rep.solved == 40 - done and rep.cached == done
     assert [r["boundaries.base.head_m"] for r in rep.table] == pytest.approx(np.linspace(0.5, 4.0, 40))
-    assert [r["fs_min"] for r in rep.table] == pytest.approx([fs_exact(h) for h in np.linspace(0.5, 4.0, 40)],
+    assert [r["fs"] for r in rep.table] == pytest.approx([fs_exact(h) for h in np.linspace(0.5, 4.0, 40)],
                                                             rel=1e-4)
 
 

@@ -44,7 +44,7 @@ def test_residual_head_and_flow_fall_as_the_cutoff_deepens():
     flow = np.array([r["flow_river_m3_s_per_m"] for r in rows])
     assert np.all(np.diff(head) < 0) and np.all(np.diff(flow) < 0)
     # the least factor of safety rises with the residual head falling
-    fs = np.array([r["fs_min"] for r in rows])
+    fs = np.array([r["fs"] for r in rows])
     assert np.all(np.diff(fs) > 0)
 
 

@@ -237,7 +237,7 @@ def test_demo_section_small_dam():
     assert r.solver_info["converged"]
     assert r.balance["relative_error"] < 1e-6
     assert r.drain_flows()["toe drain"] > 0
-    s = r.summary()
+    s = seepfe.analyse(r).to_dict()
     assert "phreatic" in s and "toe drain" in s["phreatic"]["drain_outflow_m3_s_per_m"]
 
 

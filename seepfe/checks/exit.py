@@ -9,11 +9,18 @@ reports (units in brackets; upward and outward positive):
 * ``normal_gradient`` [m/m]: -dh/dn along the outward normal (for exits on slopes);
 * ``blanket_gradient`` [m/m]: (head at the base of the top stratum - head at the surface) / thickness;
 * ``i_critical`` [m/m]: (gamma_sat - gamma_w) / gamma_w of the soil at the surface, or (Gs - 1)/(1 + e);
-* ``fs_heave`` = i_critical / i, i being the gradient across the top stratum where there is one
-  (USACE practice) and the surface gradient elsewhere; ``fs_uplift`` = sum((gamma_sat - gamma_w) t) / (gamma_w h_excess),
-  h_excess being the head at the base of the top stratum above the landside water level (or the
-  ground surface); ``fs`` = the smaller of the two (inf where the flow is not upward);
+* ``exit_gradient`` [m/m]: the gradient the criteria apply to: ``blanket_gradient`` where there is a
+  top stratum (USACE practice), else the surface gradient;
+* ``fs_heave`` = i_critical / exit_gradient where water leaves upward through a wet surface;
+  ``fs_uplift`` = sum((gamma_sat - gamma_w) t) / (gamma_w h_excess), h_excess being the head at the
+  base of the top stratum above the landside water level (or the ground surface); ``fs`` = the
+  smaller of the two;
 * ``passes`` against the section's ``checks.criteria``.
+
+Missing values follow one rule: ``inf`` means the check does not arise there (no upward flow, a dry
+surface, no top stratum, no excess head): nothing to heave or lift; ``nan`` means it arises but
+cannot be computed (a material without a unit weight), and the governing values then say so
+(verdict "not checked" unless a computed point already fails), never a silent pass.
 """
 
 from __future__ import annotations
@@ -28,7 +35,7 @@ from shapely.geometry import LineString
 from ..errors import SectionError
 from . import recovery, strata
 
-__all__ = ["ExitChecks", "exit_gradients", "default_boundaries", "infer_toe"]
+__all__ = ["ExitChecks", "exit_gradients", "default_boundaries", "infer_toe", "governing_of"]
 
 
 @dataclass(eq=False)
@@ -52,96 +59,174 @@ class ExitChecks:
     i_critical: np.ndarray           # m/m
     fs_heave: np.ndarray             # -
     fs_uplift: np.ndarray            # -
-    fs: np.ndarray                   # governing (smaller) factor of safety, -
-    passes: np.ndarray               # bool
+    fs: np.ndarray                   # governing (smaller) factor of safety, - (inf: no check arises, nan: unknown)
+    passes: np.ndarray               # bool (False where a computed value fails the criteria)
+    wet: np.ndarray                  # bool: the surface point is saturated (pressure head >= 0)
     criteria: dict
     toe_x: float
     toe_source: str
     method: str = recovery.METHOD
     top_stratum_method: str = ""
     notes: list = field(default_factory=list)
+    missing: dict = field(default_factory=dict)     # zone name -> what it lacks, where a check needed it
 
-    # ------------------------------------------------------------------ governing values
+    # ------------------------------------------------------------------ the vocabulary (DEVELOPERS.md)
     @property
-    def governing_gradient(self) -> np.ndarray:
-        """Gradient the allowable gradient applies to: across the top stratum where one exists, else at the surface."""
+    def surface_gradient(self) -> np.ndarray:
+        """Vertical gradient at the ground surface, upward positive, m/m (the issue-3 ``gradient``)."""
+        return self.gradient
+
+    @property
+    def top_stratum_gradient(self) -> np.ndarray:
+        """Mean vertical gradient across the top stratum, m/m; nan where there is none (the issue-3
+        ``blanket_gradient``)."""
+        return self.blanket_gradient
+
+    @property
+    def exit_gradient(self) -> np.ndarray:
+        """The gradient the criteria apply to: across the top stratum where one exists, else at the surface, m/m."""
         return np.where(np.isfinite(self.blanket_gradient), self.blanket_gradient, self.gradient)
+
+    governing_gradient = exit_gradient
+
+    @property
+    def unknown(self) -> np.ndarray:
+        """bool: a check arises at the point but cannot be computed (nan FS)."""
+        return np.isnan(self.fs_heave) | np.isnan(self.fs_uplift)
 
     @property
     def governing(self) -> dict:
-        """Location and value of the least factor of safety and the largest gradient, and how far from the toe the criteria fail."""
-        out = {"boundary": self.boundary}
-        fs = np.where(np.isfinite(self.fs), self.fs, np.inf)
-        if len(fs) and np.isfinite(fs).any():
-            i = int(np.argmin(fs))
-            out["min_fs"] = {"value": float(fs[i]), "x_m": float(self.x[i]), "y_m": float(self.y[i]),
-                             "distance_from_toe_m": float(self.distance_from_toe[i]),
-                             "kind": "heave" if self.fs_heave[i] <= self.fs_uplift[i] or not np.isfinite(self.fs_uplift[i]) else "uplift"}
-        else:
-            out["min_fs"] = None
-        for key, arr in (("max_gradient", self.gradient), ("max_blanket_gradient", self.blanket_gradient)):
-            a = np.where(np.isfinite(arr), arr, -np.inf)
-            if len(a) and np.isfinite(a).any():
-                i = int(np.argmax(a))
-                out[key] = {"value_m_per_m": float(a[i]), "x_m": float(self.x[i]), "y_m": float(self.y[i]),
-                            "distance_from_toe_m": float(self.distance_from_toe[i])}
-            else:
-                out[key] = None
-        fail = ~self.passes
-        out["points"] = int(len(self.x))
-        out["failing_points"] = int(fail.sum())
-        out["fails_within_m_of_toe"] = float(self.distance_from_toe[fail].max()) if fail.any() else 0.0
-        out["passes"] = bool(not fail.any())
-        return out
+        """The governing values along this boundary (plain data, nan-free; see :func:`governing_of`)."""
+        return governing_of(self)
 
     # ------------------------------------------------------------------ output
     def columns(self) -> dict:
-        """Named columns with units, for CSV."""
+        """Named columns with units (m, m/m; FS and flags -), for CSV. FS: inf = no check arises, nan = unknown."""
         return {"x_m": self.x, "y_m": self.y, "s_m": self.s, "distance_from_toe_m": self.distance_from_toe,
-                "is_node": self.is_node, "zone": self.zone, "head_m": self.head,
-                "gradient_vertical": self.gradient, "gradient_normal": self.normal_gradient,
-                "gradient_top_stratum": self.blanket_gradient, "top_stratum_thickness_m": self.thickness,
-                "head_base_m": self.head_base, "h_excess_m": self.h_excess, "i_critical": self.i_critical,
+                "is_node": self.is_node, "zone": self.zone, "wet": self.wet.astype(float), "total_head_m": self.head,
+                "surface_gradient_m_per_m": self.gradient, "normal_gradient_m_per_m": self.normal_gradient,
+                "top_stratum_gradient_m_per_m": self.blanket_gradient, "exit_gradient_m_per_m": self.exit_gradient,
+                "top_stratum_thickness_m": self.thickness, "head_base_m": self.head_base,
+                "h_excess_m": self.h_excess, "i_critical_m_per_m": self.i_critical,
                 "fs_heave": self.fs_heave, "fs_uplift": self.fs_uplift, "fs": self.fs,
                 "passes": self.passes.astype(float)}
 
     def to_csv(self, path) -> None:
         """Write one row per check point; the header names carry units (gradients m/m, FS -)."""
-        from ..output import write_csv
-        from pathlib import Path
-        write_csv(Path(path), self.columns())
+        cols = self.columns()
+        np.savetxt(path, np.column_stack([np.asarray(v, float) for v in cols.values()]), delimiter=",",
+                   header=",".join(cols), comments="", fmt="%.10g")
 
     def to_dict(self) -> dict:
         """Plain-data summary for summary.json (governing values, criteria, methods, notes)."""
         return {"boundary": self.boundary, "gradient_method": self.method,
                 "top_stratum": self.top_stratum_method, "toe_x_m": self.toe_x, "toe_from": self.toe_source,
-                "criteria": self.criteria, "governing": _finite_or_none(self.governing), "notes": list(self.notes)}
+                "criteria": dict(self.criteria), "governing": self.governing, "notes": list(self.notes)}
 
     def __len__(self) -> int:
         return len(self.x)
 
     def __repr__(self) -> str:
         g = self.governing
-        m = g["min_fs"]
         return (f"<ExitChecks '{self.boundary}': {len(self.x)} points, least FS "
-                f"{m['value'] if m else float('nan'):.3g}, {'passes' if g['passes'] else 'fails'}>")
+                f"{g['fs'] if g['fs'] is not None else float('nan'):.3g}, {g['verdict']}>")
 
 
 def _finite_or_none(d):
     if isinstance(d, dict):
         return {k: _finite_or_none(v) for k, v in d.items()}
-    if isinstance(d, float) and not math.isfinite(d):
-        return None
+    if isinstance(d, list):
+        return [_finite_or_none(v) for v in d]
+    if isinstance(d, (float, np.floating)):
+        d = float(d)
+        return d if math.isfinite(d) else None
     return d
 
 
+def _where(ex: ExitChecks, i: int) -> str:
+    return f"x = {ex.x[i]:.2f} m ({ex.distance_from_toe[i]:+.1f} m from the toe)"
+
+
+def governing_of(ex: ExitChecks) -> dict:
+    """The governing values along one exit surface, with the verdict and why (plain data, no nan or inf).
+
+    ``fs`` is the least factor of safety over the points where it could be computed, ``mode`` what
+    governs there ("heave" or "uplift"); ``exit_gradient_max`` the largest exit gradient (the one the
+    criteria apply to) where water leaves; ``surface_gradient_max`` and ``top_stratum_gradient_max``
+    the largest of each; ``fails_within_m_of_toe`` the distance from the toe of the farthest failing
+    point. ``verdict`` is "fail" where a computed value fails the criteria, else "not checked" where a
+    check arises that cannot be computed, else "pass"; ``why`` says which and where.
+    """
+    cr = ex.criteria
+    n = len(ex.x)
+    fs = np.asarray(ex.fs, float)
+    fin = np.isfinite(fs)
+    unknown = ex.unknown
+    fail = ~ex.passes
+    out = {"boundary": ex.boundary, "points": int(n), "failing_points": int(fail.sum()),
+           "unknown_points": int(unknown.sum()), "fs": None, "mode": None, "x_m": None, "y_m": None,
+           "distance_from_toe_m": None, "top_stratum_thickness_m": None}
+    if fin.any():
+        i = int(np.flatnonzero(fin)[np.argmin(fs[fin])])
+        t = float(ex.thickness[i])
+        out.update(fs=float(fs[i]), mode="heave" if ex.fs_heave[i] <= ex.fs_uplift[i] else "uplift",
+                   x_m=float(ex.x[i]), y_m=float(ex.y[i]), distance_from_toe_m=float(ex.distance_from_toe[i]),
+                   top_stratum_thickness_m=t if math.isfinite(t) else None)
+    ig = np.asarray(ex.exit_gradient, float)
+    for key, arr, mask in (("exit_gradient", ig, ex.wet), ("surface_gradient", ex.gradient, ex.wet),
+                           ("top_stratum_gradient", ex.blanket_gradient, np.ones(n, bool))):
+        a = np.where(mask & np.isfinite(arr), arr, -np.inf)
+        if n and np.isfinite(a).any():
+            k = int(np.argmax(a))
+            out[f"{key}_max"], out[f"{key}_x_m"] = float(a[k]), float(ex.x[k])
+        else:
+            out[f"{key}_max"], out[f"{key}_x_m"] = None, None
+    out["fails_within_m_of_toe"] = float(np.max(ex.distance_from_toe[fail])) if fail.any() else None
+    req = f"required {cr['fs_heave']:g} (heave), {cr['fs_uplift']:g} (uplift)"
+    if fail.any():
+        what = []
+        if (ex.fs_heave[fail] < cr["fs_heave"]).any():
+            what.append("heave")
+        if (ex.fs_uplift[fail] < cr["fs_uplift"]).any():
+            what.append("uplift")
+        if (ig[fail] > cr["allowable_gradient"]).any():
+            what.append(f"exit gradient above the allowable {cr['allowable_gradient']:g}")
+        k = int(np.flatnonzero(fail)[np.argmax(ex.distance_from_toe[fail])])
+        least = (f"least FS {out['fs']:.3g} ({out['mode']}) at {_where(ex, int(np.flatnonzero(fin)[np.argmin(fs[fin])]))}"
+                 if fin.any() else "")
+        out["verdict"] = "fail"
+        out["why"] = (f"'{ex.boundary}' fails ({', '.join(what)}) at {out['failing_points']} of {n} check points, "
+                      f"the farthest at {_where(ex, k)}; {least}; {req}").replace("; ;", ";")
+    elif unknown.any():
+        zones = ", ".join(f"'{z}' ({w})" for z, w in ex.missing.items()) or "a zone"
+        known = (f"; where it could be computed the least FS is {out['fs']:.3g} ({out['mode']}) at "
+                 f"x = {out['x_m']:.2f} m" if out["fs"] is not None else "")
+        out["verdict"] = "not checked"
+        out["why"] = (f"{int(unknown.sum())} of {n} check points along '{ex.boundary}' need a factor of safety "
+                      f"that cannot be computed: {zones}{known}")
+    elif out["fs"] is None:
+        out["verdict"] = "pass"
+        out["why"] = (f"no water leaves upward through '{ex.boundary}' and no excess head lies under a top "
+                      "stratum there: nothing to heave or lift")
+    else:
+        out["verdict"] = "pass"
+        out["why"] = (f"least FS {out['fs']:.3g} ({out['mode']}) at x = {out['x_m']:.2f} m meets the {req}; "
+                      f"largest exit gradient {out['exit_gradient_max']:.3g} within the allowable "
+                      f"{cr['allowable_gradient']:g}" if out["exit_gradient_max"] is not None else
+                      f"least FS {out['fs']:.3g} ({out['mode']}) at x = {out['x_m']:.2f} m meets the {req}")
+    return out
+
+
 def default_boundaries(section) -> list[str]:
-    """The section's ``checks.boundaries`` when given; else every seepage face, plus head boundaries
-    at the lowest prescribed head when heads differ."""
+    """The exit surfaces checked: the section's ``checks.boundaries`` when given; else every seepage
+    face except the outlets that remedies make (relief-well outlets are model devices, not ground), plus
+    the head boundaries at the lowest prescribed head when heads differ (a landside ground under
+    tailwater). Drains are never exit surfaces: water leaves into filter material there."""
     if section.spec.checks.boundaries is not None:
         return list(section.spec.checks.boundaries)
+    made = {n for d in section.remedies for n in d.get("boundaries", ())}
     bs = section.spec.boundaries
-    names = [b.name for b in bs if b.kind == "seepage_face"]
+    names = [b.name for b in bs if b.kind == "seepage_face" and b.name not in made]
     heads = [b.head for b in bs if b.kind == "head"]
     if len(set(heads)) > 1:
         lo = min(heads)
@@ -157,7 +242,7 @@ def infer_toe(section, line: np.ndarray) -> tuple[float, str]:
     if c.toe_x is not None:
         return float(c.toe_x), "checks.toe_x"
     ring = np.asarray(section.outline.exterior.coords)
-    top = ring[ring[:, 1] >= ring[:, 1].max() - 10 * section.tol]
+    top = ring[ring[:, 1] >= ring[:, 1].max() - section.length_tol]
     xc = float(top[:, 0].mean())
     ends = line[[0, -1], 0]
     i = int(np.argmin(np.abs(ends - xc)))
@@ -297,29 +382,39 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
     ref = np.maximum(y, lw) if lw is not None else y
     h_excess = hb - ref
     weight = strata.stratum_weight(sec, cols, len(x))
+    # a surface point is wet where its pressure head is not below zero (within the head tolerance);
+    # water can leave only there: above the exit point of a seepage face the surface is dry
+    wet = (hs - y) >= -sec.head_tol
+    ic_zone = np.array([strata.critical_gradient(sec.zone_material(k), gw) for k in range(len(sec.polygons))])
+    ic = ic_zone[zone]
+    # the gradient the criteria apply to: across the top stratum where there is one (USACE practice,
+    # i = h0 / z), else the recovered gradient at the surface
+    igov = np.where(np.isfinite(blanket), blanket, gradient)
+    up = wet & (igov > 0)
     with np.errstate(divide="ignore", invalid="ignore"):
-        fs_uplift = np.where(has, np.where(h_excess > 0, weight / (gw * h_excess), np.inf), np.nan)
-        ic_zone = np.array([strata.critical_gradient(sec.zone_material(k), gw) for k in range(len(sec.polygons))])
-        ic = ic_zone[zone]
-        # heave: the gradient across the top stratum where there is one (USACE practice, i = h0 / z),
-        # else the recovered gradient at the surface
-        igov = np.where(np.isfinite(blanket), blanket, gradient)
-        fs_heave = np.where(igov > 0, ic / igov, np.inf)
-        fs_heave = np.where(np.isfinite(ic), fs_heave, np.nan)
+        # inf: the check does not arise here; nan: it arises and cannot be computed (no unit weight)
+        fs_heave = np.where(up, ic / np.where(up, igov, 1.0), np.inf)
+        lifts = has & (h_excess > 0)
+        fs_uplift = np.where(lifts, weight / (gw * np.where(lifts, h_excess, 1.0)), np.inf)
     fs = np.fmin(fs_heave, fs_uplift)
     cr = c.criteria
     ok_h = ~(fs_heave < cr.fs_heave)
     ok_u = ~(fs_uplift < cr.fs_uplift)
-    ok_i = ~(igov > cr.allowable_gradient)
+    ok_i = ~(up & (igov > cr.allowable_gradient))
     passes = ok_h & ok_u & ok_i
+    missing = {}
+    for k in np.unique(zone[up & np.isnan(ic)]):
+        missing[sec.zone_names[k]] = "no unit_weight (or specific_gravity and void_ratio): no critical gradient"
+    for k in np.unique(cols.zone[np.isin(cols.point, np.flatnonzero(lifts & np.isnan(weight)))]):
+        if not np.isfinite(strata.saturated_unit_weight(sec.zone_material(k), gw)):
+            missing.setdefault(sec.zone_names[k], "no unit_weight in the top stratum: no uplift weight")
 
     toe_x, toe_src = infer_toe(sec, line)
     direction = 1.0 if (line[:, 0].mean() - toe_x) >= 0 else -1.0
     notes = []
-    nomat = sorted({sec.zone_names[k] for k in np.unique(zone) if not np.isfinite(ic_zone[k])})
-    if nomat:
-        notes.append(f"no unit_weight (or specific_gravity and void_ratio) in zone(s) {', '.join(nomat)}: "
-                     "no critical gradient, no heave factor of safety there")
+    for zname, what in missing.items():
+        notes.append(f"zone '{zname}': {what}, where a check needs it; the verdict along '{name}' is "
+                     "'not checked' unless a computed value fails")
     if not has.any():
         notes.append("no top stratum found under this boundary (no layer markedly less pervious than the one "
                      f"below it, contrast {c.contrast:g}): no uplift check")
@@ -332,8 +427,6 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
                          f"'{name}', where the boundary condition changes; the exact gradient there is singular "
                          "and this value grows as the mesh is refined: judge by the gradient across the top "
                          "stratum or by the values a little away from the end")
-    if np.isnan(weight[has]).any():
-        notes.append("a top-stratum layer has no unit weight: uplift factor of safety not computed there")
     tsm = (f"to the depth given ({depth:g} m)" if depth is not None else
            f"walk-down to the base of the first layer at least {c.contrast:g} times less pervious (vertical k) "
            "than the one below")
@@ -344,8 +437,8 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
                       is_node=node.astype(np.int64), zone=zone, head=hs, gradient=gradient,
                       normal_gradient=normal_gradient, blanket_gradient=blanket, thickness=np.where(has, z, np.nan),
                       head_base=hb, h_excess=np.where(has, h_excess, np.nan), i_critical=ic, fs_heave=fs_heave,
-                      fs_uplift=fs_uplift, fs=fs, passes=passes, criteria=crit, toe_x=toe_x, toe_source=toe_src,
-                      top_stratum_method=tsm, notes=notes)
+                      fs_uplift=fs_uplift, fs=fs, passes=passes, wet=wet, criteria=crit, toe_x=toe_x,
+                      toe_source=toe_src, top_stratum_method=tsm, notes=notes, missing=missing)
 
 
 def _interior_angle(sec, p, line=None) -> float:
@@ -361,7 +454,7 @@ def _interior_angle(sec, p, line=None) -> float:
         for b in getattr(sec.spec, "barriers", None) or []:
             bl = np.asarray(b.polyline, float)
             for tip, nxt in ((bl[0], bl[1]), (bl[-1], bl[-2])):
-                if np.linalg.norm(tip - p) <= 10 * sec.tol:
+                if np.linalg.norm(tip - p) <= sec.length_tol:
                     u, w = near_end - p, nxt - p
                     return math.acos(np.clip(u @ w / (np.linalg.norm(u) * np.linalg.norm(w)), -1, 1))
     ring = np.asarray(sec.outline.exterior.coords)[:-1]
@@ -369,7 +462,7 @@ def _interior_angle(sec, p, line=None) -> float:
         ring = ring[::-1]                  # counter-clockwise: the section lies left of each edge
     d = np.linalg.norm(ring - p, axis=1)
     i = int(np.argmin(d))
-    if d[i] > 10 * sec.tol:
+    if d[i] > sec.length_tol:
         return math.pi
     a, v, b = ring[i - 1], ring[i], ring[(i + 1) % len(ring)]
     u, w = b - v, a - v

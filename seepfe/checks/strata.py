@@ -79,7 +79,7 @@ def columns(section, x: np.ndarray, y: np.ndarray, contrast: float = 10.0,
     y = np.asarray(y, float)
     n = len(x)
     ymin = section.outline.bounds[1]
-    tol = max(section.tol * 10, 1e-9)
+    tol = max(section.length_tol, 1e-9)
     lines = shapely.linestrings(np.stack([np.stack([x, y + tol], 1), np.stack([x, np.full(n, ymin - 1.0)], 1)], 1))
     pts, zs, tops, bots = [], [], [], []
     for zi, poly in enumerate(section.polygons):

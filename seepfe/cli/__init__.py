@@ -12,9 +12,9 @@ import importlib
 import logging
 import sys
 
-from .. import __version__
+from ..about import __version__
 from ..errors import SeepfeError
-from ..result import CAUTION
+from ..about import CAUTION
 
 __all__ = ["main", "build_parser", "SUBCOMMANDS"]
 

@@ -13,16 +13,17 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
-    from ..output import atomic_dir
+    from ..analysis import analyse
+    from ..output import atomic_dir, write_analysis
     from ..report import write_pdf, write_report
     from ..solver import solve
-    from .solve import print_solution, write_solution
+    from .solve import finish
     res = solve(args.section, order=args.order)
+    a = analyse(res)
     with atomic_dir(args.out) as tmp:
-        summary, checks = write_solution(res, tmp)
-        html = write_report(res, tmp, checks=checks, summary=summary)
+        written = write_analysis(a, tmp)
+        html = write_report(a, tmp)
         if args.pdf:
             write_pdf(html, tmp / "report.pdf")
-    return print_solution(res, summary, checks, args.out,
-                          "report.html (self-contained)" + (", report.pdf" if args.pdf else "")
-                          + ", figures/ (PNG and SVG), summary.json, nodes.csv, elements.csv, result.vtu")
+    return finish(a, args.out, "report.html (self-contained)" + (", report.pdf" if args.pdf else "")
+                  + ", figures/ (PNG and SVG), " + ", ".join(written))

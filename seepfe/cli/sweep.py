@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 
-from ..result import CAUTION
+from ..about import CAUTION
 from .common import table
 
 
@@ -60,11 +60,15 @@ def run(args) -> int:
         return 4
     if rep.table:
         bad = [r for r in rep.table if r["status"] != "ok"]
-        fails = [r for r in rep.table if r["fs_check"] == "fail"]
-        fs = [r["fs_min"] for r in rep.table if not math.isnan(r["fs_min"])]
+        fails = [r for r in rep.table if r["verdict"] == "fail"]
+        unknown = [r for r in rep.table if r["verdict"] == "not checked"]
+        fs = [r["fs"] for r in rep.table if not math.isnan(r["fs"])]
         line = f"table: {len(rep.table)} rows"
         if fs:
-            line += f"; lowest FS {min(fs):.3g}, highest {max(fs):.3g}; {len(fails)} below the required {rep.fs_required:g}"
+            line += f"; least FS from {min(fs):.3g} to {max(fs):.3g}"
+        line += f"; verdict: {len(rep.table) - len(fails) - len(unknown)} pass, {len(fails)} fail"
+        if unknown:
+            line += f", {len(unknown)} not checked (first: case {unknown[0]['case']}: {unknown[0]['why']})"
         print(line)
         if bad:
             print(f"  {len(bad)} case(s) not ok, first: case {bad[0]['case']}: {bad[0]['status']}")
@@ -78,6 +82,10 @@ def run(args) -> int:
                 print(f"  warning ({t['name']}): {w}")
     fr = rep.fragility
     if fr is not None:
+        nk = sum(p.get("n_not_known", 0) for p in fr["probabilities"])
+        if nk:
+            print(f"  warning: {nk} realisation(s) gave no known FS (failed or not checked); the probabilities "
+                  "below leave them out")
         print(table(f"fragility ({fr['samples']} {fr['sampling'].replace('_', ' ')} realisations, "
                     f"{int(round(fr['confidence'] * 100))}% {fr['interval'].replace('_', '-')} band)",
                     [f"stage ({fr['stage_unit']})", "P(FS < 1)", f"P(FS < {fr['criterion']:g})"],

@@ -11,7 +11,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .style import FIG_WIDTH_IN, INK, KIND_COLOUR, MUTED, tint, zone_colours
+from .style import FIG_WIDTH_IN, INK, KIND_COLOUR, MUTED, zone_colours
 
 __all__ = ["Frame", "frame", "draw_zones", "draw_zone_edges", "draw_boundaries", "draw_mesh",
            "material_handles", "fmt_k", "fmt_sci", "window_of", "detail_window", "triangulation",

@@ -6,7 +6,6 @@ import logging
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..errors import SeepfeError
 from . import base
 
 __all__ = ["save_figure", "figure_set", "FigureItem"]
@@ -37,29 +36,22 @@ class FigureItem:
     png: bytes | None = None      # the PNG once written (the report embeds it instead of rendering again)
 
 
-def _profile_boundaries(result) -> list[str]:
-    """The boundaries checked by default (seepfe.checks), else every seepage face and drain."""
-    try:
-        from ..checks.exit import default_boundaries
-        return list(default_boundaries(result.section))
-    except ImportError:
-        return [b.name for b in result.section.spec.boundaries if b.kind in ("seepage_face", "drain")]
-
-
 def figure_set(result, show_mesh: bool = False, arrows: bool = False, quantity: str = "pore_pressure",
-               detail: bool = True, net=None):
+               detail: bool = True, net=None, analysis=None):
     """Yield the standard figures of a result (as :class:`FigureItem`, one at a time to keep memory low).
 
     section, mesh (if asked), total head, ``quantity`` (pressure head or pore pressure), flow net,
     velocity arrows (if asked),
     each again on a closer window when the section is long and flat, and one exit-gradient profile
-    per checked boundary (``result.exit_gradients``; by default every seepage face).
+    per exit surface the analysis checked (``analysis``: :func:`seepfe.analyse` of the result, made here
+    when not given).
     """
-    from ..flownet import flow_net
+    from ..analysis import analyse
     from .figures import field_figure, flow_net_figure, section_figure, velocity_figure
     from .profile import exit_gradient_figure
     sec = result.section
-    net = net or flow_net(result)
+    analysis = analysis if analysis is not None else analyse(result)
+    net = net or analysis.flow_net
     windows = [("", None)]
     dw = base.detail_window(sec) if detail else None
     if dw is not None:
@@ -81,15 +73,9 @@ def figure_set(result, show_mesh: bool = False, arrows: bool = False, quantity: 
         if arrows:
             yield FigureItem("velocity" + suffix, "Darcy velocity arrows (linear scale)" + what,
                              velocity_figure(result, window=win, title="Darcy velocity" + what))
-    if hasattr(result, "exit_gradients"):
-        for name in _profile_boundaries(result):
-            try:
-                prof = result.exit_gradients(name)
-            except (SeepfeError, KeyError, ValueError) as e:
-                log.info("no exit-gradient profile along '%s': %s", name, e)
-                continue
-            if prof is None or len(getattr(prof, "x", [])) < 2:
-                continue
-            safe = "".join(c if c.isalnum() or c in "-_" else "_" for c in name)
-            yield FigureItem(f"exit_gradient_{safe}", f"Exit gradients and factor of safety along '{name}'",
-                             exit_gradient_figure(prof, title=f"Exit gradients along '{name}'"))
+    for name, prof in analysis.exits.items():
+        if len(prof.x) < 2:
+            continue
+        safe = "".join(c if c.isalnum() or c in "-_" else "_" for c in name)
+        yield FigureItem(f"exit_gradient_{safe}", f"Exit gradients and factor of safety along '{name}'",
+                         exit_gradient_figure(prof, title=f"Exit gradients along '{name}'"))

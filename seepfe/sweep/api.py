@@ -16,7 +16,6 @@ cases whose resolved input changed.
 from __future__ import annotations
 
 import math
-import os
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -25,21 +24,26 @@ from typing import Callable, Optional
 import numpy as np
 from shapely.geometry import Point
 
+from ..about import CAUTION
 from ..errors import SeepfeError
-from ..result import CAUTION
+from ..records import UNITS
 from ..section import load_section
 from .case import case_hash, from_json_float
 from .fragility import material_overrides, probabilities, sample_conductivities
 from .runner import Runner
-from .spec import SweepSpec, column_of, expand_cases, load_sweep
+from .spec import SweepSpec, expand_cases, load_sweep
 from .target import Stopped, quantity_of, search
 from .values import infer_unit, unit_suffix, with_values
 
 __all__ = ["run_sweep", "SweepReport", "MARKER"]
 
 MARKER = ".seepfe-sweep"
-GOVERNING = ["exit_gradient_max", "exit_gradient_x_m", "exit_gradient_boundary", "fs_min", "fs_min_x_m",
-             "fs_min_boundary"]
+#: the table's governing columns <- the keys of the record's governing block (summary.json's "governing")
+GOVERNING = {"fs": "fs", "fs_mode": "mode", "fs_boundary": "boundary", "fs_x_m": "x_m",
+             "top_stratum_thickness_m": "top_stratum_thickness_m", "exit_gradient_max": "exit_gradient_max",
+             "exit_gradient_x_m": "exit_gradient_x_m", "exit_gradient_boundary": "exit_gradient_boundary",
+             "fails_within_m_of_toe": "fails_within_m_of_toe", "verdict": "verdict", "why": "why"}
+_TEXT = ("fs_mode", "fs_boundary", "exit_gradient_boundary", "verdict", "why")
 
 
 @dataclass
@@ -86,13 +90,13 @@ def _row(index, varied, params: dict, columns: dict, rec: dict, h: str, fs_requi
     hd = rec.get("heads_m", {})
     for p in point_names:
         r[f"head_{p}_m"] = from_json_float(hd.get(p))
-    g = rec.get("governing", {})
-    for k in GOVERNING:
-        v = g.get(k)
-        r[k] = v if k.endswith("_boundary") else from_json_float(v)
-    fs = r.get("fs_min", math.nan)
+    g = rec.get("governing") or {}
+    for col, key in GOVERNING.items():
+        v = g.get(key)
+        r[col] = (v if v is not None else "") if col in _TEXT else from_json_float(v)
+    if not g:
+        r["verdict"], r["why"] = "not checked", rec.get("status", "")
     r["fs_required"] = fs_required
-    r["fs_check"] = "n/a" if (fs is None or math.isnan(fs)) else ("pass" if fs >= fs_required else "fail")
     r["nodes"] = rec.get("nodes", 0)
     r["hash"] = h[:16]
     return r
@@ -127,10 +131,11 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
                                   f"(known: {', '.join(sec.boundary_names)})")
     points = {k: [float(v[0]), float(v[1])] for k, v in spec.points.items()}
     for k, p in points.items():
-        if not sec.outline.buffer(sec.tol * 10).contains(Point(p)):
+        if not sec.outline.buffer(sec.length_tol).contains(Point(p)):
             raise SeepfeError(f"{slabel}: points.{k}: ({p[0]:g}, {p[1]:g}) m is outside the section")
     crit = sec.spec.checks.criteria
     fs_required = spec.criterion.fs if spec.criterion.fs is not None else max(crit.fs_heave, crit.fs_uplift)
+    criteria = None if spec.criterion.fs is None else {"fs_heave": spec.criterion.fs, "fs_uplift": spec.criterion.fs}
     out = Path(out) if out is not None else None
     if out is not None:
         _prepare_out(out)
@@ -141,6 +146,11 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
     rep = SweepReport(complete=True, backend=runner.backend, fs_required=fs_required)
 
     def payload(section_dict: dict) -> dict:
+        if criteria is not None:       # the sweep's criterion is the cases' criteria: one verdict
+            section_dict = dict(section_dict)
+            checks = dict(section_dict.get("checks") or {})
+            checks["criteria"] = {**(checks.get("criteria") or {}), **criteria}
+            section_dict["checks"] = checks
         return {"section": section_dict, "solve": sopts, "points": points, "exit": spec.exit}
 
     offsets: dict[str, tuple[int, int]] = {}
@@ -160,7 +170,6 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
         rep.cases += len(set(case_hash(p) for p in payloads))
         return recs
 
-    methods = set()
     try:
         # ------------------------------------------------------------ table
         table_rows, columns, flow_names, point_names = [], {}, [], list(points)
@@ -176,8 +185,6 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
                     if b not in flow_names:
                         flow_names.append(b)
             for c, p, r in zip(cases, pls, recs):
-                if r.get("fs_method"):
-                    methods.add(r["fs_method"])
                 table_rows.append(_row(c.index, c.varied, c.params, columns, r, case_hash(p), fs_required,
                                        flow_names, point_names))
                 for b, prof in (r.get("exit") or {}).items():
@@ -187,7 +194,7 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
                         profiles.setdefault((b, c.varied), []).append((c.params[c.varied], prof))
         rep.columns = (["case", "varied"] + list(columns.values()) + ["status"]
                        + [f"flow_{b}_m3_s_per_m" for b in flow_names] + [f"head_{p}_m" for p in point_names]
-                       + GOVERNING + ["fs_required", "fs_check", "nodes", "hash"]) if spec.vary else []
+                       + list(GOVERNING) + ["fs_required", "nodes", "hash"]) if spec.vary else []
         rep.table = table_rows
 
         # ------------------------------------------------------------ targets
@@ -207,9 +214,6 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
                     except SeepfeError as e:
                         raise SeepfeError(f"{slabel}: target '{tname}': {e}") from None
                 recs = run(f"target {tname}", pls)
-                for r in recs:
-                    if r is not None and r.get("fs_method"):
-                        methods.add(r["fs_method"])
                 return recs
 
             res = search(t, evaluate, width, fs_required)
@@ -242,8 +246,6 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
             Q = np.full((len(K), len(stages)), math.nan)
             errors = 0
             for idx, r in enumerate(recs):
-                if r.get("fs_method"):
-                    methods.add(r["fs_method"])
                 if r.get("status", "").startswith("error"):
                     errors += 1
                     continue
@@ -259,7 +261,8 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
     finally:
         if own:
             runner.close()
-    rep.fs_method = "; ".join(sorted(methods))
+    rep.fs_method = ("least FS and verdict of each case by seepfe.analyse against the section's checks.criteria "
+                     "(what seepfe solve prints for the same input)")
     rep.wall_s = time.perf_counter() - t0
     if rep.complete and out is not None:
         _write(rep, out, spec, slabel, sec, sopts, points, columns if spec.vary else {}, profiles, plots)
@@ -268,7 +271,7 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
 
 def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts, points, columns, profiles,
            plots: bool) -> None:
-    from .. import __version__
+    from ..about import __version__
     from ..output import atomic_dir, write_json
     from . import report
     title = spec.title or sec.title or sec.source
@@ -280,7 +283,7 @@ def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts
             if plots:
                 results = [c for c in rep.columns if c.startswith(("flow_", "head_"))]
                 if any(not math.isnan(r["exit_gradient_max"]) for r in rep.table):
-                    results += ["exit_gradient_max", "fs_min"]
+                    results += ["exit_gradient_max", "fs"]
                 for key, col in columns.items():
                     rows = [r for r in rep.table if r["varied"] in (key, "grid")]
                     others = [c for k, c in columns.items() if k != key] if spec.mode == "grid" else []
@@ -325,10 +328,11 @@ def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts
             "seepfe_version": __version__, "title": title, "section": sec.source,
             "section_sha256": sec.input_hash, "sweep_file": slabel, "mode": spec.mode,
             "vary": {k: {"column": c} for k, c in columns.items()}, "fixed": spec.fixed, "solve": sopts,
-            "points_m": points, "exit_boundaries": spec.exit if spec.exit is not None else "every seepage face and drain",
+            "points_m": points,
+            "exit_boundaries": spec.exit if spec.exit is not None else "the section's (checks.boundaries, else the "
+                                                                      "default rule of seepfe.analyse)",
             "fs_required": rep.fs_required, "fs_method": rep.fs_method,
-            "units": {"length": "m", "head": "m", "flow": "m3/s per m (+ into the section)",
-                      "conductivity": "m/s", "gradient": "-", "factor of safety": "-"},
+            "units": dict(UNITS),
             "cases": rep.cases, "solved_this_run": rep.solved, "from_cache": rep.cached, "backend": rep.backend,
             "wall_s": round(rep.wall_s, 3),
             "targets": [{k: v for k, v in t.items()} for t in rep.targets],

@@ -95,13 +95,18 @@ def binomial_interval(k: int, n: int, confidence: float = 0.95, method: str = "w
 
 
 def probabilities(fs: np.ndarray, criterion: float, confidence: float, method: str) -> list[dict]:
-    """Per stage (columns of fs, (S, T)): counts and probabilities of FS < 1 and FS < criterion."""
+    """Per stage (columns of fs, (S, T)): counts and probabilities of FS < 1 and FS < criterion.
+
+    A realisation whose FS is not known (nan: the case failed, or the verdict was "not checked") is
+    not counted in n and is reported as ``n_not_known``, so the probabilities say over how many they are.
+    """
     out = []
     for j in range(fs.shape[1]):
         col = fs[:, j]
+        unknown = int(np.isnan(col).sum())
         col = col[~np.isnan(col)]
         n = len(col)
-        row = {"n": n}
+        row = {"n": n, "n_not_known": unknown}
         for tag, lim in (("below_1", 1.0), ("below_criterion", criterion)):
             k = int(np.sum(col < lim))
             lo, hi = binomial_interval(k, n, confidence, method)

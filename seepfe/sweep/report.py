@@ -63,8 +63,9 @@ def _save(fig, stem: Path) -> list[str]:
 
 
 def _label(col: str) -> str:
-    """'boundaries.river.head_m' -> 'boundaries.river.head (m)'; 'fs_min' -> 'lowest FS at exit (-)'."""
-    names = {"exit_gradient_max": "largest exit gradient (-)", "fs_min": "lowest FS at the exit (-)"}
+    """'boundaries.river.head_m' -> 'boundaries.river.head (m)'; 'fs' -> 'least FS at the exit (-)'."""
+    names = {"exit_gradient_max": "largest exit gradient (m/m)", "fs": "least FS at the exit (-)",
+             "fs_min": "least FS at the exit (-)", "verdict": "verdict (1 pass, 0 fail)"}
     if col in names:
         return names[col]
     if col.startswith("flow_") and col.endswith("_m3_s_per_m"):
@@ -101,7 +102,7 @@ def plot_vs_parameter(folder: Path, key: str, pcol: str, rows: list[dict], resul
                 ax.plot(x, y, color="#888888", lw=0.8, marker=".", ms=3)
             else:
                 ax.plot(x, y, color=OKABE_ITO[j], lw=1.4, marker="o", ms=3.5, label=lab if k == 0 else None)
-        if res == "fs_min":
+        if res == "fs":
             ax.axhline(fs_required, color="#D55E00", lw=1, ls="--")
             ax.text(0.99, fs_required, f" required {fs_required:g}", transform=ax.get_yaxis_transform(),
                     ha="right", va="bottom", fontsize=7, color="#D55E00")
@@ -137,7 +138,7 @@ def plot_profiles(folder: Path, boundary: str, cases: list[tuple[float, dict]], 
     fsmax = 0.0
     for v, prof in cases:
         x = np.asarray(prof["x_m"], float)
-        i = np.array([math.nan if g is None else float(g) for g in prof["gradient"]])
+        i = np.array([math.nan if g is None else float(g) for g in prof["exit_gradient"]])
         fs = np.array([math.nan if f is None else float(f) for f in prof["fs"]])
         fs[np.isinf(fs)] = np.nan
         o = np.argsort(x, kind="stable")
@@ -150,7 +151,7 @@ def plot_profiles(folder: Path, boundary: str, cases: list[tuple[float, dict]], 
     axs[1, 0].text(0.99, fs_required, f"required {fs_required:g}", transform=axs[1, 0].get_yaxis_transform(),
                    ha="right", va="bottom", fontsize=7, color="#D55E00")
     axs[1, 0].set_ylim(0, min(max(fsmax, 1.2 * fs_required), 4 * fs_required))
-    axs[0, 0].set_ylabel("exit gradient (-)", fontsize=8)
+    axs[0, 0].set_ylabel("exit gradient (m/m)", fontsize=8)
     axs[1, 0].set_ylabel("FS against heave/uplift (-)", fontsize=8)
     axs[1, 0].set_xlabel(f"x along '{boundary}' (m)", fontsize=8)
     cb = fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=axs[:, 0], shrink=0.8)

@@ -100,9 +100,9 @@ class SolveSpec(BaseModel):
 class CriterionSpec(BaseModel):
     model_config = _CFG
     fs: Optional[Annotated[float, Field(gt=0)]] = Field(
-        None, description="required factor of safety against heave/uplift at the exit (-); default: the "
-                          "section's checks.criteria (the larger of fs_heave and fs_uplift); set the value "
-                          "your agency requires")
+        None, description="required factor of safety against heave and uplift at the exit (-); when set it "
+                          "replaces checks.criteria.fs_heave and fs_uplift of every case, so each case's verdict is "
+                          "what seepfe solve gives with those criteria; default: the section's own criteria")
 
 
 class TargetSpec(BaseModel):
@@ -113,7 +113,9 @@ class TargetSpec(BaseModel):
     parameter: str
     range: Annotated[list[Finite], Field(min_length=2, max_length=2)]
     find: Literal["smallest", "largest"] = "smallest"
-    quantity: str = "fs_min"
+    quantity: Optional[str] = Field(None, description="result to bound: fs, exit_gradient_max, "
+                                    "flow_<boundary>_m3_s_per_m, head_<point>_m, ...; default: fs when 'at_least' or "
+                                    "'at_most' is given, else the verdict against the section's criteria")
     at_least: Optional[Finite] = None
     at_most: Optional[Finite] = None
     tolerance: Annotated[float, Field(gt=0)]
@@ -149,7 +151,7 @@ class FragilitySpec(BaseModel):
     samples: Annotated[int, Field(ge=1, le=100_000)] = 50
     sampling: Literal["latin_hypercube", "monte_carlo"] = "latin_hypercube"
     seed: int = 0
-    quantity: str = "fs_min"
+    quantity: str = Field("fs", description="result whose distribution is counted (default: fs, the least FS)")
     criterion: Optional[Annotated[float, Field(gt=0)]] = Field(None, description="default: criterion.fs")
     confidence: Annotated[float, Field(gt=0, lt=1)] = 0.95
     interval: Literal["wilson", "clopper_pearson"] = "wilson"

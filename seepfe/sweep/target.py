@@ -1,7 +1,8 @@
 """Target search: the smallest (or largest) value of one parameter that meets a condition.
 
-The condition is a bound on one result of a case (``fs_min >= 1.5``, ``exit_gradient_max <= 0.5``,
-``head_toe_m <= 2``).  The search brackets the change from "fails" to "meets" and shrinks the
+The condition is a bound on one result of a case (``fs >= 1.5``, ``exit_gradient_max <= 0.5``,
+``head_toe_m <= 2``), or, by default for the factor of safety, the verdict itself: ``verdict = pass``
+against the section's criteria, exactly as ``seepfe solve`` decides it.  The search brackets the change from "fails" to "meets" and shrinks the
 bracket by a parallel multisection: each round solves ``w`` evenly spaced interior points at once
 (``w`` = number of workers; ``w = 1`` is plain bisection), keeps the sub-interval where the outcome
 changes, and stops when the bracket is no wider than the tolerance.  The returned value is the end
@@ -18,22 +19,35 @@ from typing import Callable, Optional
 import numpy as np
 
 from ..errors import SeepfeError
+from ..records import fs_value
 from .case import from_json_float
 from .spec import TargetSpec
 
-__all__ = ["search", "quantity_of", "Stopped"]
+__all__ = ["search", "quantity_of", "Stopped", "GOVERNING_QUANTITIES"]
 
 
 class Stopped(Exception):
     """Raised when the runner's solve budget ran out before the search finished."""
 
 
+#: quantities read from a record's governing block (table column -> governing key); "fs_min" is the old name of "fs"
+GOVERNING_QUANTITIES = {"fs": "fs", "fs_min": "fs", "exit_gradient_max": "exit_gradient_max",
+                        "top_stratum_thickness_m": "top_stratum_thickness_m",
+                        "fails_within_m_of_toe": "fails_within_m_of_toe"}
+#: quantities whose default condition (no at_least / at_most) is the verdict
+VERDICT_QUANTITIES = ("verdict", "fs", "fs_min")
+
+
 def quantity_of(record: dict, name: str) -> float:
-    """A result of a case record by its table column name (fs_min, exit_gradient_max, flow_<b>_m3_s_per_m,
-    head_<point>_m)."""
-    g = record.get("governing", {})
-    if name in g:
-        return from_json_float(g[name])
+    """A result of a case record by its table column name: fs (least FS; inf where no check arises, nan
+    where it is not known), verdict (1 pass, 0 fail, nan not checked), exit_gradient_max,
+    top_stratum_thickness_m, fails_within_m_of_toe, flow_<b>_m3_s_per_m, head_<point>_m."""
+    g = record.get("governing") or {}
+    if name == "verdict":
+        return {"pass": 1.0, "fail": 0.0}.get(g.get("verdict"), math.nan)
+    if name in GOVERNING_QUANTITIES:
+        key = GOVERNING_QUANTITIES[name]
+        return fs_value(g) if key == "fs" else from_json_float(g.get(key))
     if name.startswith("flow_") and name.endswith("_m3_s_per_m"):
         b = name[5:-11]
         if b in record.get("flows_m3_s_per_m", {}):
@@ -42,7 +56,8 @@ def quantity_of(record: dict, name: str) -> float:
         p = name[5:-2]
         if p in record.get("heads_m", {}):
             return from_json_float(record["heads_m"][p])
-    known = list(g) + [f"flow_{b}_m3_s_per_m" for b in record.get("flows_m3_s_per_m", {})] + \
+    known = ["verdict"] + list(GOVERNING_QUANTITIES) + \
+        [f"flow_{b}_m3_s_per_m" for b in record.get("flows_m3_s_per_m", {})] + \
         [f"head_{p}_m" for p in record.get("heads_m", {})]
     raise SeepfeError(f"no result named '{name}' (known: {', '.join(known)})")
 
@@ -50,11 +65,12 @@ def quantity_of(record: dict, name: str) -> float:
 def search(t: TargetSpec, evaluate: Callable[[list[float]], list[Optional[dict]]], width: int,
            fs_required: float) -> dict:
     """Run one target search; ``evaluate(xs)`` returns the case records at the parameter values xs."""
+    quantity = t.quantity or ("verdict" if t.at_least is None and t.at_most is None else "fs")
     if t.at_least is None and t.at_most is None:
-        if t.quantity != "fs_min":
+        if quantity not in VERDICT_QUANTITIES:
             raise SeepfeError(f"target '{t.name or t.parameter}': give 'at_least' or 'at_most' for "
-                              f"'{t.quantity}'")
-        bound, sense = fs_required, ">="
+                              f"'{quantity}'")
+        quantity, bound, sense = "verdict", 1.0, ">="     # the verdict of the section's criteria
     elif t.at_least is not None:
         bound, sense = t.at_least, ">="
     else:
@@ -73,10 +89,11 @@ def search(t: TargetSpec, evaluate: Callable[[list[float]], list[Optional[dict]]
                 raise SeepfeError(f"target '{t.name or t.parameter}' at {t.parameter} = {x:g}: {st[7:]}")
             if st != "ok":
                 warnings.append(f"{t.parameter} = {x:g}: {st}")
-            q = quantity_of(r, t.quantity)
+            q = quantity_of(r, quantity)
             if math.isnan(q):
+                why = (r.get("governing") or {}).get("why", "")
                 raise SeepfeError(f"target '{t.name or t.parameter}' at {t.parameter} = {x:g}: "
-                                  f"'{t.quantity}' is undefined")
+                                  f"'{quantity}' is not known" + (f" ({why})" if why else ""))
             ok = q >= bound if sense == ">=" else q <= bound
             history.append((float(x), q, bool(ok)))
             out.append(ok)
@@ -86,8 +103,9 @@ def search(t: TargetSpec, evaluate: Callable[[list[float]], list[Optional[dict]]
     m_lo, m_hi = meets_at([lo, hi])
     # 'smallest': fails at low, meets at high.  'largest': meets at low, fails at high.
     want_low, want_high = (False, True) if t.find == "smallest" else (True, False)
-    base = {"name": t.name or t.parameter, "parameter": t.parameter, "find": t.find, "quantity": t.quantity,
-            "condition": f"{t.quantity} {sense} {bound:g}", "range": [lo, hi], "tolerance": t.tolerance}
+    cond = "verdict = pass" if quantity == "verdict" else f"{quantity} {sense} {bound:g}"
+    base = {"name": t.name or t.parameter, "parameter": t.parameter, "find": t.find, "quantity": quantity,
+            "condition": cond, "range": [lo, hi], "tolerance": t.tolerance}
     if (m_lo, m_hi) != (want_low, want_high):
         if t.find == "smallest" and m_lo:
             msg, val = "already met at the low end of the range", lo

@@ -2,27 +2,19 @@
 
 A key is a declared parameter name (``"stage"``) or a dotted path into the section file
 (``"materials.sand.kx"``, ``"boundaries.river.head"``; list items are addressed by their ``"name"``,
-or by a plain index).  When :mod:`seepfe.params` is present its ``with_values`` is used, so named
-parameters and expressions work; otherwise a minimal dotted-path setter below stands in.
+or by a plain index); values are set by :func:`seepfe.params.with_values`, so named parameters and
+expressions work.
 """
 
 from __future__ import annotations
 
-import copy
 import difflib
-import importlib
 from typing import Any
 
+from .. import params
 from ..errors import SectionError
 
 __all__ = ["with_values", "get_value", "infer_unit", "unit_suffix"]
-
-
-def _params_module():
-    try:
-        return importlib.import_module("seepfe.params")
-    except ImportError:
-        return None
 
 
 def _step(node: Any, part: str, path: str):
@@ -46,68 +38,21 @@ def _step(node: Any, part: str, path: str):
     raise SectionError(f"'{path}': '{part}' is inside a value, not an object or list")
 
 
-def _set_path(data: dict, path: str, value) -> None:
-    parts = path.split(".")
-    node: Any = data
-    for part in parts[:-1]:
-        node = _step(node, part, path)
-    last = parts[-1]
-    if isinstance(node, dict):
-        # a new key is allowed only beside existing ones (e.g. 'k' -> the loader names a bad key)
-        node[last] = value
-    elif isinstance(node, list) and last.lstrip("-").isdigit() and -len(node) <= int(last) < len(node):
-        node[int(last)] = value
-    else:
-        raise SectionError(f"'{path}': cannot set '{last}' here")
-
-
-def _fallback_with_values(data: dict, overrides: dict) -> dict:
-    out = copy.deepcopy(data)
-    for key, value in overrides.items():
-        if "." in key:
-            _set_path(out, key, value)
-        else:
-            params = out.get("parameters")
-            if not isinstance(params, dict) or key not in params:
-                raise SectionError(f"'{key}': not a declared parameter of the section and not a dotted "
-                                   "path (write e.g. 'boundaries.river.head')")
-            if isinstance(params[key], dict):
-                params[key]["value"] = value
-            else:
-                params[key] = value
-    return out
-
-
 def with_values(data: dict, overrides: dict, label: str = "<dict>") -> dict:
-    """A deep copy of the section dict with ``overrides`` ({key: value}) applied.
-
-    Uses :func:`seepfe.params.with_values` when that module exists.
-    """
-    mod = _params_module()
-    if mod is not None and hasattr(mod, "with_values"):
-        return mod.with_values(data, overrides, label)
-    try:
-        return _fallback_with_values(data, overrides)
-    except SectionError as e:
-        raise SectionError(f"{label}: {e}") from None
+    """A deep copy of the section dict with ``overrides`` ({key: value}) applied (:func:`seepfe.params.with_values`)."""
+    return params.with_values(data, overrides, label)
 
 
 def get_value(data: dict, key: str):
     """The current value of a key (dotted path or declared parameter) in the section dict."""
-    mod = _params_module()
-    if mod is not None and hasattr(mod, "resolve"):
-        if "." not in key and key in (data.get("parameters") or {}):
-            return mod.parameter_values(data)[key]
-        data = mod.resolve(data)         # expressions -> numbers, so the base value is a number
+    if "." not in key and key in (data.get("parameters") or {}):
+        return params.parameter_values(data)[key]
+    data = params.resolve(data)          # expressions -> numbers, so the base value is a number
     if "." in key:
         node: Any = data
         for part in key.split("."):
             node = _step(node, part, key)
         return node
-    params = data.get("parameters")
-    if isinstance(params, dict) and key in params:
-        v = params[key]
-        return v.get("value", v.get("default")) if isinstance(v, dict) else v
     raise SectionError(f"'{key}': not a declared parameter of the section and not a dotted path")
 
 

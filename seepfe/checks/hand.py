@@ -1,85 +1,28 @@
-"""Apply the checks to a solved section: exit surfaces, cutoffs and the hand methods beside the FE.
+"""The hand methods applied to a solved section, beside the finite elements.
 
-:func:`run_checks` returns a :class:`ChecksReport` (plain data for summary.json, rows for the CLI
-tables, one :class:`~seepfe.checks.exit.ExitChecks` per checked boundary).  A hand method whose
-assumptions the section does not meet reports ``applicable: false`` and the reason, never a number.
+:func:`hand_methods` takes a result and its exit checks and returns one
+:class:`~seepfe.checks.methods.HandMethod` per method, with the inputs a checker needs to redo it,
+or, where the section does not meet the method's assumptions, the reason and no number. The closed
+forms themselves are in :mod:`seepfe.checks.handmethods`.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
 
 import numpy as np
 import shapely
 from shapely.geometry import LineString, Point
 
-from ..errors import SectionError
 from . import handmethods as hm
 from . import strata
-from .exit import ExitChecks, default_boundaries, exit_gradients, infer_toe, _finite_or_none
+from .exit import ExitChecks
+from .methods import HandMethod, not_applicable
 
-__all__ = ["ChecksReport", "run_checks", "find_cutoffs", "contact_path"]
+__all__ = ["hand_methods", "find_cutoffs", "contact_path"]
 
 CUTOFF_ASPECT = 0.1      # a zone is a thin cutoff when its width / length is below this
 CUTOFF_CONTRAST = 100.0  # ... and its conductivity is this many times below its neighbours'
-
-
-@dataclass
-class ChecksReport:
-    exits: dict                                  # boundary name -> ExitChecks
-    hand: dict = field(default_factory=dict)     # method name -> dict
-    cutoffs: list = field(default_factory=list)
-    notes: list = field(default_factory=list)
-
-    def to_dict(self) -> dict:
-        return _finite_or_none({
-            "units": {"gradient": "m/m", "fs": "-", "head": "m", "length": "m", "flow": "m3/s per m"},
-            "exits": {k: v.to_dict() for k, v in self.exits.items()},
-            "cutoffs": self.cutoffs,
-            "hand_methods": self.hand,
-            "notes": self.notes,
-        })
-
-    def governing_rows(self) -> list[list]:
-        """Rows for a fixed-width table: one per exit surface."""
-        rows = []
-        for name, ex in self.exits.items():
-            g = ex.governing
-            m, mg, mb = g["min_fs"], g["max_gradient"], g["max_blanket_gradient"]
-            rows.append([name, f"{m['value']:.2f} ({m['kind']})" if m else "-",
-                         f"{m['x_m']:.2f}" if m else "-",
-                         f"{mg['value_m_per_m']:.3f} at x {mg['x_m']:.2f}" if mg else "-",
-                         f"{mb['value_m_per_m']:.3f} at x {mb['x_m']:.2f}" if mb else "-",
-                         f"{g['fails_within_m_of_toe']:.1f}" if not g["passes"] else "-",
-                         "pass" if g["passes"] else "FAIL"])
-        return rows
-
-    def hand_rows(self) -> list[list]:
-        """Rows: method, hand value, FE value, remark."""
-        rows = []
-        for name, d in self.hand.items():
-            if not d.get("applicable"):
-                continue
-            for label, hv, fv in d.get("compare", []):
-                rows.append([f"{name}: {label}", _fmt(hv), _fmt(fv), d.get("remark", "")])
-        return rows
-
-
-    def not_applicable(self) -> list[str]:
-        """One line per hand method whose assumptions the section does not meet, with the reason."""
-        return [f"{name}: not applicable: {d.get('reason', '')}" for name, d in self.hand.items()
-                if not d.get("applicable")]
-
-
-def _fmt(v):
-    if v is None:
-        return "-"
-    if isinstance(v, str):
-        return v
-    if not math.isfinite(v):
-        return "inf" if v > 0 else "-"
-    return f"{v:.4g}"
 
 
 # ---------------------------------------------------------------------------- geometry helpers
@@ -177,7 +120,7 @@ def find_cutoffs(section) -> list[dict]:
         w, L = e.min(), e.max()
         if L <= 0 or w / L > CUTOFF_ASPECT:
             continue
-        nb = [j for j, q in enumerate(polys) if j != zi and p.buffer(10 * section.tol).intersects(q)]
+        nb = [j for j, q in enumerate(polys) if j != zi and p.buffer(section.length_tol).intersects(q)]
         if not nb or kmax[zi] * CUTOFF_CONTRAST > min(kmax[j] for j in nb):
             continue
         x0, y0, x1, y1 = p.bounds
@@ -201,28 +144,23 @@ def _notch_cutoff(path, tol):
 
 
 # ---------------------------------------------------------------------------- the driver
-def run_checks(result, boundaries: list[str] | None = None) -> ChecksReport:
-    """Exit checks on the chosen boundaries (default: section ``checks.boundaries`` or every seepage face)
-    and the hand methods beside them."""
+def hand_methods(result, exits: dict) -> tuple[list[HandMethod], list[dict]]:
+    """The hand methods beside the FE on the first checked exit surface, and the cutoffs found.
+
+    Returns ([HandMethod per method], [cutoff dicts]).
+    """
     sec = result.section
-    c = sec.spec.checks
-    names = boundaries if boundaries is not None else default_boundaries(sec)
-    for n in names:
-        if n not in sec.boundary_names:
-            raise SectionError(f"{sec.source}: checks.boundaries: no boundary named '{n}' "
-                               f"(known: {', '.join(sec.boundary_names)})")
-    exits = {n: exit_gradients(result, n) for n in names}
-    rep = ChecksReport(exits=exits)
+    names = list(exits)
     if not names:
-        rep.notes.append("no exit surface to check (no seepage face; name one in checks.boundaries)")
-        return rep
+        why = "no exit surface is checked (no seepage face; name one in checks.boundaries)"
+        return [not_applicable(m, why) for m in ("blanket_theory", "lane", "khosla", "terzaghi_prism", "sellmeijer")], []
     heads = [b for b in sec.spec.boundaries if b.kind == "head"]
     up = max(heads, key=lambda b: b.head)
     ex = exits[names[0]]
     exb = sec.boundary(names[0])
     land_level = _landside_level(sec, ex, exb)
     H = up.head - land_level
-    tol = 10 * sec.tol
+    tol = sec.length_tol
     path = contact_path(sec, up.name, names[0])
     if path is not None:
         path = _simplify(path, tol)
@@ -230,14 +168,46 @@ def run_checks(result, boundaries: list[str] | None = None) -> ChecksReport:
     notch = _notch_cutoff(path, tol) if path is not None else None
     if notch:
         cutoffs.append(notch)
-    rep.cutoffs = cutoffs
-    rep.hand["blanket theory (EM 1110-2-1913 App. B)"] = _blanket(result, ex, up, H, land_level)
-    rep.hand["Lane weighted creep (Lane 1935)"] = _lane(sec, path, H, cutoffs, tol, up)
-    rep.hand["Khosla exit gradient (Khosla et al. 1936)"] = _khosla(result, ex, path, H, cutoffs, tol)
-    rep.hand["Terzaghi heave prism (Terzaghi 1943)"] = _terzaghi(result, ex, cutoffs, land_level, exb)
-    rep.hand["Sellmeijer piping (Sellmeijer et al. 2011)"] = _sellmeijer(
-        sec, rep.hand["blanket theory (EM 1110-2-1913 App. B)"], H)
-    return rep
+    blanket = _blanket(result, ex, up, H, land_level)
+    out = [_as_method("blanket_theory", blanket, {"h0_m": ("h0_m", "h0_m"), "top_stratum_gradient": ("i0", "i0"),
+                                                    "fs_uplift": ("fs", "fs"),
+                                                    "q_m3_s_per_m": ("q_m3_s_per_m", "q_m3_s_per_m")}),
+           _as_method("lane", _lane(sec, path, H, cutoffs, tol, up), {"weighted_creep_ratio": ("ratio", None)}),
+           _as_method("khosla", _khosla(result, ex, path, H, cutoffs, tol),
+                      {"exit_gradient": ("exit_gradient", "fe_exit_gradient")}),
+           _as_method("terzaghi_prism", _terzaghi(result, ex, cutoffs, land_level, exb), {"fs_heave": ("fs", None)}),
+           _as_method("sellmeijer", _sellmeijer(sec, blanket, H),
+                      {"critical_head_m": ("H_c_m", None), "critical_head_ratio": ("ratio", None)})]
+    return out, cutoffs
+
+
+def _as_method(method: str, d: dict, value_map: dict) -> HandMethod:
+    """A HandMethod from the plain dict a method function returns."""
+    if not d.get("applicable"):
+        return not_applicable(method, d.get("reason", ""))
+    fe = d.get("fe") or {}
+    values = {}
+    for q, (hk, fk) in value_map.items():
+        hand = d.get(hk)
+        if method == "terzaghi_prism":
+            prisms = d.get("prisms") or [{}]
+            hand = min((p.get("fs", math.inf) for p in prisms), default=None)
+        fv = fe.get(fk) if isinstance(fe, dict) and fk in fe else (d.get(fk) if fk else None)
+        values[q] = (hand, fv)
+    skip = {"applicable", "compare", "remark", "notes", "assumptions", "fe", "prisms", "table"}
+    inputs = {k: {"value": v, "unit": _unit_of(k), "meaning": k} for k, v in d.items()
+              if k not in skip and isinstance(v, (int, float, str)) and not isinstance(v, bool)}
+    return HandMethod(method, True, d.get("remark", ""), values=values, inputs=inputs,
+                      assumptions=d.get("assumptions", ""), details={k: d[k] for k in ("prisms", "table") if k in d},
+                      notes=list(d.get("notes", [])))
+
+
+def _unit_of(key: str) -> str:
+    for suf, unit in (("_m3_s_per_m", "m3/s per m"), ("_m_s", "m/s"), ("_per_m", "1/m"), ("_m2", "m2"),
+                      ("_kN_per_m", "kN/m"), ("_m", "m")):
+        if key.endswith(suf):
+            return unit
+    return "-"
 
 
 def _landside_level(sec, ex: ExitChecks, exb) -> float:
@@ -305,7 +275,7 @@ def _blanket(result, ex: ExitChecks, up, H, land_level) -> dict:
         xs = np.linspace(x0, x1, 4001)
         yt_all = _top_envelope(sec, xs)
         ring = np.asarray(sec.outline.exterior.coords)
-        xc = float(ring[ring[:, 1] >= ring[:, 1].max() - 10 * sec.tol, 0].mean())
+        xc = float(ring[ring[:, 1] >= ring[:, 1].max() - sec.length_tol, 0].mean())
         side = (xs - xc) * sgn < 0
         low = side & (yt_all <= yt + 1e-3 * max(ymax - yt, 1e-9))
         if not low.any():
@@ -463,7 +433,7 @@ def _terzaghi(result, ex, cutoffs, land_level, exb) -> dict:
     for cu in cutoffs:
         face = cu["x_m"] + sgn * cu["thickness_m"] / 2
         i = int(np.argmin(np.abs(ex.x - face)))
-        if abs(float(ex.x[i]) - face) > 0.5 * cu["thickness_m"] + max(10 * sec.tol, 0.05 * (float(ex.y[i]) - cu["tip_m"])):
+        if abs(float(ex.x[i]) - face) > 0.5 * cu["thickness_m"] + max(sec.length_tol, 0.05 * (float(ex.y[i]) - cu["tip_m"])):
             continue          # the exit surface does not meet this cutoff's downstream face
         yg = float(ex.y[i])
         d = yg - cu["tip_m"]

@@ -1,0 +1,215 @@
+"""The output files' data model: summary.json and the sweep's case record, as pydantic models.
+
+:meth:`seepfe.analysis.Analysis.to_dict` writes data that validates against :class:`Summary`; its
+JSON Schema is published as ``docs/summary.schema.json`` (``scripts/write_schema.py``; a test fails
+while the file and the code disagree). A sweep case record (:class:`CaseRecord`) is a projection of
+the same data, so the sweep table's governing columns are what ``seepfe solve`` prints.
+
+Units: SI, one ``units`` block per file; keys carry their unit as a suffix (``_m``, ``_m3_s_per_m``,
+``_m_s``, ``_kPa``); gradients are m/m and factors of safety dimensionless (-). A value that could
+not be computed is ``null`` and the record says why beside it (``why``); infinities never appear.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any, Literal, Optional
+
+from pydantic import BaseModel, ConfigDict, Field
+
+__all__ = ["Units", "Governing", "HandRecord", "ExitSummary", "Summary", "CaseRecord", "UNITS", "SUMMARY_FORMAT",
+           "summary_schema", "fs_value", "VERDICTS"]
+
+#: the format id written into summary.json; bump the number when a key changes meaning
+SUMMARY_FORMAT = "seepfe-summary/1"
+VERDICTS = ("pass", "fail", "not checked")
+
+_STRICT = ConfigDict(extra="forbid")
+_num = Optional[float]
+
+
+class Units(BaseModel):
+    """The units of every number in the file (SI)."""
+
+    model_config = _STRICT
+    length: Literal["m"] = "m"
+    head: Literal["m"] = "m"
+    pressure: Literal["kPa"] = "kPa"
+    flow: Literal["m3/s per m (+ into the section)"] = "m3/s per m (+ into the section)"
+    conductivity: Literal["m/s"] = "m/s"
+    gradient: Literal["m/m"] = "m/m"
+    factor_of_safety: Literal["-"] = "-"
+    unit_weight: Literal["kN/m3"] = "kN/m3"
+    time: Literal["s"] = "s"
+
+
+UNITS = Units().model_dump()
+
+
+class Criteria(BaseModel):
+    model_config = _STRICT
+    fs_heave: float = Field(description="required factor of safety against heave (-)")
+    fs_uplift: float = Field(description="required factor of safety against uplift (-)")
+    allowable_gradient: float = Field(description="largest allowable exit gradient (m/m)")
+    source: str = Field(description="where the values come from")
+
+
+class Governing(BaseModel):
+    """The values an engineer signs, over every checked exit surface (pinned keys: docs/checks.md)."""
+
+    model_config = _STRICT
+    fs: _num = Field(description="least factor of safety (heave or uplift) over the checked exit surfaces (-); "
+                                 "null where none could be computed or none arises (see why)")
+    mode: Optional[Literal["heave", "uplift"]] = Field(description="what governs the least FS")
+    boundary: Optional[str] = Field(description="exit surface of the least FS")
+    x_m: _num = Field(description="x of the least FS, m")
+    distance_from_toe_m: _num = Field(None, description="distance of the least FS from the toe, m (+ away from the "
+                                                        "embankment)")
+    top_stratum_thickness_m: _num = Field(description="top-stratum thickness under the least FS, m (null: none)")
+    exit_gradient_max: _num = Field(description="largest exit gradient (across the top stratum where there is "
+                                                "one, else at the surface) where water leaves, m/m")
+    exit_gradient_x_m: _num = Field(description="x of the largest exit gradient, m")
+    exit_gradient_boundary: Optional[str] = Field(None, description="exit surface of the largest exit gradient")
+    fails_within_m_of_toe: _num = Field(None, description="distance from the toe of the farthest failing point, m")
+    verdict: Literal["pass", "fail", "not checked"] = Field(description="against the section's criteria")
+    why: str = Field(description="why the verdict, in words")
+    criteria: Optional[Criteria] = None
+
+
+class ExitGoverning(BaseModel):
+    model_config = _STRICT
+    boundary: str
+    points: int
+    failing_points: int
+    unknown_points: int = Field(description="points where a check arises but cannot be computed")
+    fs: _num
+    mode: Optional[Literal["heave", "uplift"]]
+    x_m: _num
+    y_m: _num
+    distance_from_toe_m: _num
+    top_stratum_thickness_m: _num
+    exit_gradient_max: _num
+    exit_gradient_x_m: _num
+    surface_gradient_max: _num = Field(description="largest vertical gradient at the surface where water leaves "
+                                                   "(singular at a toe: grows with refinement), m/m")
+    surface_gradient_x_m: _num
+    top_stratum_gradient_max: _num = Field(description="largest mean gradient across the top stratum, m/m")
+    top_stratum_gradient_x_m: _num
+    fails_within_m_of_toe: _num
+    verdict: Literal["pass", "fail", "not checked"]
+    why: str
+
+
+class ExitSummary(BaseModel):
+    """The checks along one exit surface."""
+
+    model_config = _STRICT
+    boundary: str
+    gradient_method: str
+    top_stratum: str = Field(description="how the top stratum was found")
+    toe_x_m: float
+    toe_from: str
+    criteria: Criteria
+    governing: ExitGoverning
+    notes: list[str]
+
+
+class HandRecord(BaseModel):
+    """One quantity of one hand method beside the FE (pinned keys)."""
+
+    model_config = _STRICT
+    method: Literal["blanket_theory", "lane", "khosla", "terzaghi_prism", "sellmeijer", "kozeny", "casagrande"]
+    quantity: str = Field(pattern=r"^[a-z][a-z0-9_]*$", description="snake_case id, unit-suffixed where it has one")
+    unit: str
+    hand: _num = Field(description="the hand method's value (null where it does not apply)")
+    fe: _num = Field(description="the finite-element value beside it (null where there is none)")
+    applies: bool
+    why: str = Field(description="why it does not apply, or what it was applied to")
+
+
+class HandDetail(BaseModel):
+    model_config = _STRICT
+    method: str
+    title: str
+    applies: bool
+    why: str
+    inputs: dict[str, dict[str, Any]] = Field(description="name -> {value, unit, meaning}")
+    assumptions: str
+    details: dict[str, Any]
+    notes: list[str]
+
+
+class ExitBoundaries(BaseModel):
+    model_config = _STRICT
+    names: list[str]
+    rule: str = Field(description="checks.boundaries, or the documented default")
+
+
+class Summary(BaseModel):
+    """summary.json: everything a run computed about one section, SI units."""
+
+    model_config = _STRICT
+    format: Literal["seepfe-summary/1"] = SUMMARY_FORMAT
+    seepfe_version: str
+    title: str
+    source: str
+    input_sha256: str
+    units: Units
+    flows_m3_s_per_m: dict[str, float] = Field(description="boundary or drain zone -> flow, + into the section")
+    balance: dict[str, float]
+    head_range_m: list[float]
+    mesh: dict[str, Any]
+    solver: dict[str, Any]
+    phreatic: dict[str, Any]
+    exit_boundaries: ExitBoundaries
+    exits: dict[str, ExitSummary]
+    governing: Governing
+    hand_methods: list[HandRecord]
+    hand_method_details: list[HandDetail]
+    cutoffs: list[dict[str, Any]]
+    remedies: list[dict[str, Any]]
+    flow_net: Optional[dict[str, Any]] = None
+    notes: list[str]
+    caution: str
+
+
+class ExitProfile(BaseModel):
+    model_config = _STRICT
+    x_m: list[float]
+    exit_gradient: list[Optional[float]] = Field(description="m/m (null where none)")
+    fs: list[Optional[float | Literal["inf"]]] = Field(description="- ('inf': no check arises, null: unknown)")
+
+
+class CaseRecord(BaseModel):
+    """One case of a sweep (``DIR/cases/<hash>.json``): a projection of summary.json."""
+
+    model_config = _STRICT
+    status: str = Field(pattern=r"^(ok|not converged|error: .*)$")
+    flows_m3_s_per_m: dict[str, float] = Field(default_factory=dict)
+    heads_m: dict[str, Optional[float]] = Field(default_factory=dict)
+    governing: Optional[Governing] = None
+    hand_methods: list[HandRecord] = Field(default_factory=list)
+    exit: dict[str, ExitProfile] = Field(default_factory=dict)
+    warnings: list[str] = Field(default_factory=list)
+    nodes: int = 0
+    balance_relative_error: _num = None
+    time_s: float = 0.0
+
+
+def summary_schema() -> dict:
+    """The JSON Schema of summary.json (docs/summary.schema.json)."""
+    s = Summary.model_json_schema()
+    s["$schema"] = "https://json-schema.org/draft/2020-12/schema"
+    s["$id"] = "https://seepfe.example/summary.schema.json"
+    return s
+
+
+def fs_value(governing: dict | None) -> float:
+    """The least FS of a governing block as a number: inf where none arises (verdict pass, fs null), nan
+    where it is not known."""
+    if not governing:
+        return math.nan
+    fs = governing.get("fs")
+    if fs is not None:
+        return float(fs)
+    return math.inf if governing.get("verdict") == "pass" else math.nan
