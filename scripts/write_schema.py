@@ -1,7 +1,8 @@
-"""Write docs/section.schema.json, the JSON Schema of the section-file format, from seepfe.schema.
+"""Write the JSON Schemas in docs/ from the code: section.schema.json (the section-file format, from
+seepfe.schema) and summary.schema.json (summary.json, from seepfe.records).
 
-Run after changing seepfe/schema.py:  python scripts/write_schema.py
-(tests/test_schema_file.py fails while the committed file is out of date; ``--check`` does the same
+Run after changing seepfe/schema.py or seepfe/records.py:  python scripts/write_schema.py
+(tests/test_schema_file.py fails while a committed file is out of date; ``--check`` does the same
 from the command line and exits 1.)
 """
 
@@ -14,6 +15,18 @@ from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
 TARGET = ROOT / "docs" / "section.schema.json"
+SUMMARY = ROOT / "docs" / "summary.schema.json"
+
+
+def summary_schema_text() -> str:
+    """The schema of summary.json as the exact text to commit."""
+    sys.path.insert(0, str(ROOT))
+    from seepfe.records import summary_schema
+    s = summary_schema()
+    s["description"] = ("summary.json written by seepfe solve, report and seepfe.analyse(result).to_dict(): the "
+                        "flows, the exit checks, the governing values and verdict, the hand methods. SI units "
+                        "(see 'units'); null where a value could not be computed, with the reason beside it.")
+    return json.dumps(s, indent=2, sort_keys=True, ensure_ascii=False) + "\n"
 
 
 def schema_text() -> str:
@@ -71,14 +84,16 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--check", action="store_true", help="exit 1 if the committed file is out of date")
     args = ap.parse_args(argv)
-    text = schema_text()
-    if args.check:
-        ok = TARGET.exists() and TARGET.read_text(encoding="utf-8") == text
-        print(f"{TARGET.relative_to(ROOT)}: {'up to date' if ok else 'OUT OF DATE: run python scripts/write_schema.py'}")
-        return 0 if ok else 1
-    TARGET.write_text(text, encoding="utf-8")
-    print(f"wrote {TARGET.relative_to(ROOT)} ({len(text)} characters)")
-    return 0
+    bad = 0
+    for target, text in ((TARGET, schema_text()), (SUMMARY, summary_schema_text())):
+        if args.check:
+            ok = target.exists() and target.read_text(encoding="utf-8") == text
+            print(f"{target.relative_to(ROOT)}: {'up to date' if ok else 'OUT OF DATE: run python scripts/write_schema.py'}")
+            bad += not ok
+        else:
+            target.write_text(text, encoding="utf-8")
+            print(f"wrote {target.relative_to(ROOT)} ({len(text)} characters)")
+    return 1 if bad else 0
 
 
 if __name__ == "__main__":

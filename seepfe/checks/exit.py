@@ -197,6 +197,10 @@ def governing_of(ex: ExitChecks) -> dict:
         out["verdict"] = "fail"
         out["why"] = (f"'{ex.boundary}' fails ({', '.join(what)}) at {out['failing_points']} of {n} check points, "
                       f"the farthest at {_where(ex, k)}; {least}; {req}").replace("; ;", ";")
+        if unknown.any():
+            zones = ", ".join(f"'{z}' ({w})" for z, w in ex.missing.items()) or "a zone"
+            out["why"] += (f"; {int(unknown.sum())} more point(s) could not be checked: {zones}, so the least FS may "
+                           "be lower still")
     elif unknown.any():
         zones = ", ".join(f"'{z}' ({w})" for z, w in ex.missing.items()) or "a zone"
         known = (f"; where it could be computed the least FS is {out['fs']:.3g} ({out['mode']}) at "
