@@ -42,32 +42,10 @@ def _decimals(step: float) -> int:
 
 
 def phreatic_lines(result) -> list:
-    """The phreatic surface as a list of (n, 2) polylines, m.
-
-    Uses ``result.phreatic_line()`` where the result provides it; otherwise the contour of pressure
-    head just below zero (so that boundaries held at zero pressure, such as a seepage face or a
-    submerged ground surface, are not traced).  Empty when no part of the section is above it.
-    """
-    if hasattr(result, "phreatic_line"):
-        pl = result.phreatic_line()
-        if pl is None:
-            return []
-        if hasattr(pl, "xy") and not isinstance(pl, np.ndarray):
-            pl = pl.xy
-        if isinstance(pl, np.ndarray) and pl.ndim == 2:
-            return [pl] if len(pl) > 1 else []
-        pieces = [np.asarray(p, float) for p in pl]
-        return [p for p in pieces if p.ndim == 2 and len(p) > 1]
-    p = result.pressure_head
-    H = float(np.ptp(result.h)) or 1.0
-    eps = 1e-6 * max(H, 1.0)
-    if p.min() >= -eps:
-        return []
-    from matplotlib.figure import Figure
-    tri = base.triangulation(result.mesh)
-    ax = Figure().add_subplot()
-    cs = ax.tricontour(tri, p, levels=[-eps])
-    return base.contour_pieces(cs)
+    """The phreatic surface (``result.phreatic_line()``) as a list of (n, 2) polylines, m; empty when no
+    part of the section is above it."""
+    pl = result.phreatic_line()
+    return [pl] if len(pl) > 1 else []
 
 
 def _phreatic(ax, result, label=True):
