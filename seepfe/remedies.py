@@ -37,7 +37,7 @@ from typing import Annotated, Literal, Optional, Union
 
 import numpy as np
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, TypeAdapter, ValidationError
-from shapely.geometry import LineString, Polygon, box
+from shapely.geometry import LineString, Point, Polygon, box
 from shapely.ops import linemerge, unary_union
 
 from .conductivity import conductivity_tensor
@@ -537,13 +537,24 @@ def _wells(r: ReliefWells, spec, geo: _Geo, data: dict, who: str, refine: list):
     L_r = y_out - top
     name = r.name or "relief wells"
     mats = data["materials"]
+
+    def weight_at(y):
+        """The unit weight of the soil the device replaces at (x, y): the model devices weigh what the
+        ground they stand in weighs, so the checks over them are those of that ground."""
+        p = Point(x, y)
+        for zn, mn, poly in zip(geo.names, geo.materials, geo.polys):
+            if poly.buffer(geo.tol * 10).contains(p) and isinstance(mats.get(mn), dict):
+                return {k_: mats[mn][k_] for k_ in ("unit_weight", "specific_gravity", "void_ratio")
+                        if mats[mn].get(k_) is not None}
+        return {}
     m_screen = _unique(f"{name} screen", mats)
     mats[m_screen] = {"description": f"equipotential slot of {who} (model device)",
-                      "k": float(100 * k * max(1.0, W / b))}
+                      "k": float(100 * k * max(1.0, W / b)), **weight_at(0.5 * (top + bottom))}
     m_riser = _unique(f"{name} riser", mats)
     mats[m_riser] = {"description": f"riser of {who}: vertical conductivity gives the line-of-wells "
                                     f"resistance (model device)",
-                     "kx": float(kmin * 1e-2), "ky": float(L_r / (b * R)), "angle": 0.0}
+                     "kx": float(kmin * 1e-2), "ky": float(L_r / (b * R)), "angle": 0.0,
+                     **weight_at(0.5 * (top + min(y_out, ground)))}
     screen = box(x - b / 2, bottom, x + b / 2, top)
     riser = box(x - b / 2, top, x + b / 2, y_out)
     bore = box(x - b / 2, y_out, x + b / 2, geo.bounds[3] + geo.extent).intersection(geo.outline)
@@ -569,7 +580,7 @@ def _tensor(m: dict | object):
 
 # --------------------------------------------------------------------------- boundaries
 def _reboundary(boundaries: list[dict], new_outline, tol: float, surfaces: list[tuple],
-                new_bounds: list[dict], clear: list = ()) -> list[dict]:
+                new_bounds: list[dict], clear: list = (), parts: dict | None = None) -> list[dict]:
     """Move boundaries onto the new outline.
 
     Each old boundary keeps the parts of its polyline still on the outline; a boundary that lost
@@ -613,27 +624,32 @@ def _reboundary(boundaries: list[dict], new_outline, tol: float, surfaces: list[
             if k:
                 nb["name"] = _unique(b["name"], taken)
                 taken.append(nb["name"])
+                if parts is not None:
+                    parts.setdefault(b["name"], [b["name"]]).append(nb["name"])
             out.append(nb)
     return out + new_bounds
 
 
 # --------------------------------------------------------------------------- entry points
-def apply(spec: SectionSpec, data: dict, raw, label: str = "<dict>", notes: list | None = None) -> dict:
+def apply(spec: SectionSpec, data: dict, raw, label: str = "<dict>", notes: list | None = None,
+          parts: dict | None = None) -> dict:
     """A new section dict with the remedies turned into zones, materials, boundaries and refinements.
 
     ``spec`` is the validated plain section, ``data`` its (resolved) dict, ``raw`` the ``remedies``
     list. ``notes``, when given, receives one dict per remedy: what it became (zones, elevations,
     model figures, and under ``"boundaries"`` the names of the boundaries it made). Raises
-    SectionError (prefixed with label) naming the remedy and the fault.
+    SectionError (prefixed with label) naming the remedy and the fault. ``parts``, when given,
+    receives {boundary name: [its pieces' names]} for each boundary a remedy split apart.
     """
     try:
         rems = validate(raw)
-        return _apply(spec, data, rems, raw, notes)
+        return _apply(spec, data, rems, raw, notes, parts)
     except SectionError as e:
         raise SectionError(f"{label}: {e}") from None
 
 
-def _apply(spec: SectionSpec, data: dict, rems: list, raw: list, notes: list | None = None) -> dict:
+def _apply(spec: SectionSpec, data: dict, rems: list, raw: list, notes: list | None = None,
+           parts: dict | None = None) -> dict:
     import copy
     data = copy.deepcopy(data)
     geo = _Geo(spec)
@@ -690,7 +706,7 @@ def _apply(spec: SectionSpec, data: dict, rems: list, raw: list, notes: list | N
                       "polygon": [[float(x), float(y)] for x, y in np.asarray(p.exterior.coords)[:-1]]}
                      for n, m, p in zip(geo.names, geo.materials, geo.polys)]
     data["boundaries"] = _reboundary(list(data.get("boundaries", [])), geo.outline, geo.tol * 4,
-                                     surfaces, new_bounds, clear)
+                                     surfaces, new_bounds, clear, parts)
     if not refine:
         data["mesh"].pop("refine")
     return data

@@ -77,6 +77,12 @@ class MaterialSpec(BaseModel):
     specific_gravity: Optional[Positive] = Field(None, description="Gs of the solids (-)")
     void_ratio: Optional[Positive] = Field(None, description="void ratio e (-)")
     d70: Optional[Positive] = Field(None, description="grain size d70, m (piping checks)")
+    soil_class: Optional[Literal[
+        "very fine sand or silt", "fine sand", "medium sand", "coarse sand", "fine gravel", "medium gravel",
+        "coarse gravel including cobbles", "boulders with some cobbles and gravel", "soft clay", "medium clay",
+        "hard clay", "very hard clay or hardpan"]] = Field(
+        None, description="soil class of Lane's (1935) weighted-creep table, to compare a creep ratio with "
+                          "its safe value (docs/checks.md)")
     unsaturated: Optional[UnsaturatedSpec] = None
 
     @model_validator(mode="after")
@@ -232,12 +238,17 @@ class ChecksSpec(BaseModel):
                           "boundaries at the lowest prescribed head)")
     spacing: Optional[Positive] = Field(None, description="extra check points every this many m along "
                                                           "each boundary (besides every mesh node)")
+    top_stratum: Optional[list[Annotated[str, Field(min_length=1)]]] = Field(
+        None, description="names of the zones that make up the landside top stratum (default: found where "
+                          "the soil turns markedly more pervious, see 'contrast'); the base of the deepest "
+                          "of them is the base of the top stratum")
     top_stratum_depth: Optional[Positive] = Field(
         None, description="depth of the base of the top stratum below the surface, m (default: found "
-                          "by walking down the zones)")
+                          "from the zones)")
     contrast: Annotated[float, AfterValidator(_finite), Field(gt=1.0)] = Field(
-        10.0, description="a layer is 'markedly less pervious' than the one below when their vertical "
-                          "conductivities differ by at least this ratio (-)")
+        10.0, description="the substratum is 'markedly more pervious' than the top stratum when its "
+                          "vertical conductivity is at least this ratio times the equivalent (series) "
+                          "vertical conductivity of the layers above it (-)")
     toe_x: Optional[Finite] = Field(None, description="x of the landside toe, m (default: inferred)")
     riverside_toe_x: Optional[Finite] = Field(None, description="x of the riverside toe, m (default: inferred)")
     landside_water_level: Optional[Finite] = Field(

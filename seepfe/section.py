@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import difflib
 import hashlib
+import math
 import json
 import os
 import re
@@ -47,6 +48,7 @@ class Section:
     tol: float = 0.0                          # geometric tolerance, m
     graph: geometry.Graph = field(default=None, repr=False)
     remedies: tuple = field(default=(), repr=False)   # per remedy: what it became (seepfe.remedies.apply)
+    boundary_parts: dict = field(default_factory=dict, repr=False)   # a boundary remedies split: its pieces
 
     @property
     def title(self) -> str:
@@ -289,14 +291,15 @@ def load_section(path_or_dict) -> Section:
     except ValidationError as e:
         raise SectionError(_format_pydantic(e, work, label)) from None
     notes: list = []
+    parts: dict = {}
     if measures is not None:
-        work = remedies.apply(spec, work, measures, label, notes)
+        work = remedies.apply(spec, work, measures, label, notes, parts)
         try:
             spec = SectionSpec.model_validate(work)
         except ValidationError as e:
             raise SectionError(_format_pydantic(e, work, label) + " (after applying the remedies)") from None
     try:
-        return _build(spec, data, label, tuple(notes))
+        return _build(spec, data, label, tuple(notes), parts)
     except SectionError as e:
         raise SectionError(f"{label}: {e}") from None
 
@@ -319,7 +322,70 @@ def _check_coordinates(spec: SectionSpec) -> None:
                                    f"must lie within +-{MAX_COORDINATE:.0e} m")
 
 
-def _build(spec: SectionSpec, data: dict, label: str, notes: tuple = ()) -> Section:
+def _ground_parts(line: np.ndarray, outline, tol: float) -> np.ndarray:
+    """The segments (k, 2, 2) of a boundary polyline that face upward (outward normal with an upward
+    component): the ground it covers, not an end face."""
+    from shapely import contains_xy
+    a, b = line[:-1], line[1:]
+    t = b - a
+    L = np.linalg.norm(t, axis=1)
+    ok = L > 0
+    n = np.stack([t[:, 1], -t[:, 0]], 1) / np.where(ok, L, 1.0)[:, None]
+    mid = 0.5 * (a + b)
+    eps = max(100 * tol, 1e-6)
+    inside = contains_xy(outline, mid[:, 0] + eps * n[:, 0], mid[:, 1] + eps * n[:, 1])
+    n[inside] *= -1                                  # point the normal out of the section
+    up = ok & (n[:, 1] > 0.1)
+    return np.stack([a[up], b[up]], 1)
+
+
+def _check_water_levels(spec: SectionSpec, outline, blines: list, polys: list, tol: float) -> None:
+    """Refuse water levels that steady seepage through the section cannot describe (docs/checks.md):
+
+    * the highest head above the crest of the embankment it stands against (the top of the zones above
+      the ground under the upstream water, where the upstream boundary runs up the slope of one of them,
+      as on a riverside or upstream face): the section would be overtopped (an embankment not modelled,
+      as in blanket theory's idealisation, is not checked);
+    * the highest head at or below every point of its own boundary: no water stands on it, nothing enters;
+    * no outlet below the highest head (no lower head, no seepage face, drain or outward flux reaching
+      below it): nothing can flow, so any exit check would read noise.
+    """
+    heads = [(b, bl) for b, bl in zip(spec.boundaries, blines) if b.kind == "head"]
+    up, up_line = max(heads, key=lambda t: t[0].head)
+    H = float(up.head)
+    ground = _ground_parts(up_line, outline, tol)
+    if not len(ground):
+        return             # an end face or an interior line (an idealised aquifer problem): no ground under water
+    ground_up = float(ground[:, :, 1].min())
+    from shapely.geometry import MultiLineString
+    d = ground[:, 1] - ground[:, 0]
+    slope = np.abs(d[:, 1]) > 0.1 * np.abs(d[:, 0])          # the water against a slope, not on a flat bed
+    above = [p for p in polys if float(p[:, 1].min()) >= ground_up - tol]
+    faced = []
+    if slope.any():
+        wet = MultiLineString([g.tolist() for g in ground[slope]])
+        faced = [p for p in above if Polygon(p).exterior.buffer(tol).intersection(wet).length > 10 * tol]
+    crest = max((float(p[:, 1].max()) for p in above), default=-math.inf)
+    if faced and H > crest + tol:
+        raise SectionError(f"boundary '{up.name}': head {H:g} m is above the crest of the section ({crest:g} m): the "
+                           "section would be overtopped, and steady seepage does not describe overtopping; lower the "
+                           "water level or raise the crest")
+    if H <= ground_up + tol:
+        raise SectionError(f"boundary '{up.name}': head {H:g} m is at or below the lowest point of the boundary "
+                           f"({ground_up:g} m): no water stands on it, so nothing enters the section; give a water "
+                           "level above the ground it covers")
+    outlet = any(b.kind == "head" and b.head < H - tol for b, _ in heads) or \
+        any(b.kind in ("seepage_face", "drain") and float(bl[:, 1].min()) < H - tol
+            for b, bl in zip(spec.boundaries, blines)) or \
+        any(b.kind == "flux" and b.flux < 0 for b in spec.boundaries) or \
+        any(getattr(z, "drain", False) for z in spec.zones)
+    if not outlet:
+        raise SectionError(f"no outlet below the highest water level (boundary '{up.name}', head {H:g} m): no lower "
+                           "head, no seepage face or drain below it, so nothing flows; name the exit surface "
+                           "(a seepage face, a drain or a lower head)")
+
+
+def _build(spec: SectionSpec, data: dict, label: str, notes: tuple = (), parts: dict | None = None) -> Section:
     # names
     names = [z.name for z in spec.zones]
     for n in names:
@@ -332,6 +398,12 @@ def _build(spec: SectionSpec, data: dict, label: str, notes: tuple = ()) -> Sect
     for z in spec.zones:
         if z.material not in spec.materials:
             raise SectionError(f"zone '{z.name}': " + _unknown("material", z.material, list(spec.materials)))
+    c = spec.checks
+    if c.top_stratum is not None and c.top_stratum_depth is not None:
+        raise SectionError("checks: give 'top_stratum' (zone names) or 'top_stratum_depth', not both")
+    for n in c.top_stratum or ():
+        if n not in names:
+            raise SectionError("checks.top_stratum: " + _unknown("zone", n, names))
     if not any(b.kind == "head" for b in spec.boundaries):
         raise SectionError("no boundary prescribes a 'head': the head field would have no unique solution; "
                            "add at least one boundary with \"head\": <m>")
@@ -360,5 +432,7 @@ def _build(spec: SectionSpec, data: dict, label: str, notes: tuple = ()) -> Sect
     rlines = geometry.check_barriers(rnames, [r.polyline for r in spec.barriers], outline, tol)
     graph = geometry.build_graph(names, polys, outline, bnames, blines, tol,
                                  barriers=tuple(zip(rnames, rlines)))
+    if spec.solver.phreatic != "off":     # idealised confined problems may hold any heads (docs/format.md)
+        _check_water_levels(spec, outline, blines, polys, 10 * tol)
     return Section(spec=spec, source=label, data=data, input_hash=_hash(data), polygons=tuple(polys),
-                   outline=outline, extent=extent, tol=tol, graph=graph, remedies=notes)
+                   outline=outline, extent=extent, tol=tol, graph=graph, remedies=notes, boundary_parts=dict(parts or {}))

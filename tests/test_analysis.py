@@ -150,10 +150,30 @@ def test_unconverged_solve_is_not_checked():
 
 def test_no_exit_surface_is_not_checked():
     d = _levee(size=4.0)
-    d["boundaries"][1] = {"name": "landside", "polyline": [[3, 5], [18, 0], [120, 0]], "head": 0.0}
-    d["boundaries"][0]["head"] = 0.0                          # equal heads: no lowest-head exit
+    d["checks"] = {"boundaries": []}                          # the engineer checks no surface
     g = seepfe.analyse(seepfe.solve(d)).governing
     assert g["verdict"] == "not checked" and "no exit surface" in g["why"]
+
+
+@pytest.mark.parametrize("change, fragment", [
+    (lambda d: d["boundaries"][0].update(head=6.0), "above the crest"),
+    (lambda d: d["boundaries"][0].update(head=0.0), "no water stands on it"),
+    (lambda d: d["boundaries"][0].update(head=-1.0), "no water stands on it"),
+    (lambda d: d["boundaries"][1].update(polyline=[[3, 5], [4, 4.7]]), "no outlet"),
+])
+def test_impossible_water_levels_are_refused_before_solving(tmp_path, capsys, change, fragment):
+    # overtopping (a stage above the crest) and a river below its own ground are not steady seepage
+    # problems: a one-line error at load (exit 2, no folder), never a "pass" with FS 3e14
+    d = _levee(size=4.0)
+    change(d)
+    with pytest.raises(seepfe.SectionError, match=fragment):
+        seepfe.load_section(d)
+    p = tmp_path / "x.json"
+    p.write_text(json.dumps(d))
+    assert main(["check", str(p)]) == 2
+    assert main(["solve", str(p), "--out", str(tmp_path / "o")]) == 2
+    err = capsys.readouterr().err
+    assert fragment in err and err.count("\n") == 2 and not (tmp_path / "o").exists()
 
 
 def test_str_of_a_result_runs_no_checks(monkeypatch):

@@ -43,7 +43,7 @@ def _square_mesh(split, order):
         "materials": {"soil": {"k": KS}},
         "zones": [{"name": "square", "material": "soil", "polygon": [[0, 0], [W, 0], [W, W], [0, W]]}],
         "boundaries": [{"name": "outline", "polyline": [[0, 0], [W, 0], [W, W], [0, W], [0, 0]],
-                        "head": 0.0}]})
+                        "head": 0.0}], "solver": {"phreatic": "off"}})
     return seepfe.make_mesh(sec, order=order, size=2.0 / 2**split, split=split)   # nested: one gmsh mesh, split
 
 

@@ -233,6 +233,8 @@ def _scaled(d, f=None, shift=0.0):
         z["polygon"] = [[x * f + shift, y * f] for x, y in z["polygon"]]
     for b in d["boundaries"]:
         b["polyline"] = [[x * f + shift, y * f] for x, y in b["polyline"]]
+        if "head" in b:
+            b["head"] *= f               # water levels are lengths too (else the section is overtopped)
     d["mesh"]["size"] *= f
     d["mesh"]["refine"] = []
 
@@ -252,7 +254,7 @@ EDGES = {
                     "SectionError"),
     "all k at the ends of the range": (lambda d: d.update(materials={"fill": {"k": 1e-20}, "blanket": {"k": 1e-20},
                                                                      "sand": {"k": 10.0}}), "unconverged"),
-    "head 1e300": (lambda d: d["boundaries"][0].update(head=1e300), "ok"),
+    "head 1e300": (lambda d: d["boundaries"][0].update(head=1e300), "SectionError"),   # above the crest
     "flux 1e300": (lambda d: d["boundaries"][2].update(flux=1e300), "ok"),
     "angle 1e300 deg": (lambda d: d["materials"]["sand"].update(angle=1e300), "ok"),
     "section in micrometres": (lambda d: _scaled(d, 1e-6), "ok"),

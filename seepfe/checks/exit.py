@@ -225,9 +225,13 @@ def default_boundaries(section) -> list[str]:
     """The exit surfaces checked: the section's ``checks.boundaries`` when given; else every seepage
     face except the outlets that remedies make (relief-well outlets are model devices, not ground), plus
     the head boundaries at the lowest prescribed head when heads differ (a landside ground under
-    tailwater). Drains are never exit surfaces: water leaves into filter material there."""
+    tailwater). Drains are never exit surfaces: water leaves into filter material there. A boundary a
+    remedy split apart (ground on both sides of a well) is checked in all its pieces."""
     if section.spec.checks.boundaries is not None:
-        return list(section.spec.checks.boundaries)
+        out = []
+        for n in section.spec.checks.boundaries:
+            out += [p for p in section.boundary_parts.get(n, [n]) if p not in out]
+        return out
     made = {n for d in section.remedies for n in d.get("boundaries", ())}
     bs = section.spec.boundaries
     names = [b.name for b in bs if b.kind == "seepage_face" and b.name not in made]
@@ -373,7 +377,7 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
 
     # top stratum
     x, y = xy[:, 0], xy[:, 1]
-    cols = strata.columns(sec, x, y, contrast=c.contrast, depth=depth)
+    cols = strata.columns(sec, x, y, depth=depth)
     z = cols.thickness
     has = np.isfinite(z) & (z > 0)
     gw = sec.gamma_w
@@ -419,9 +423,12 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
     for zname, what in missing.items():
         notes.append(f"zone '{zname}': {what}, where a check needs it; the verdict along '{name}' is "
                      "'not checked' unless a computed value fails")
+    dist = direction * (x - toe_x)
     if not has.any():
-        notes.append("no top stratum found under this boundary (no layer markedly less pervious than the one "
-                     f"below it, contrast {c.contrast:g}): no uplift check")
+        notes.append("no top stratum found under this boundary (the soil never turns markedly more pervious "
+                     f"below the surface, contrast {c.contrast:g}): no uplift check")
+    else:
+        notes += _stratum_notes(sec, cols, has, z, x, dist, name)
     if len(gradient) and np.isfinite(gradient).any():
         k = int(np.nanargmax(gradient))
         local = 3.0 * float(L[ee[k]])
@@ -432,17 +439,40 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
                          "and this value grows as the mesh is refined: judge by the gradient across the top "
                          "stratum or by the values a little away from the end")
     tsm = (f"to the depth given ({depth:g} m)" if depth is not None else
-           f"walk-down to the base of the first layer at least {c.contrast:g} times less pervious (vertical k) "
-           "than the one below")
+           f"the zones named in checks.top_stratum ({', '.join(c.top_stratum)})" if c.top_stratum is not None else
+           f"down to where the soil turns markedly more pervious: the interface with the largest ratio of the "
+           f"vertical k below to the series k of the layers above, at least {c.contrast:g}")
     crit = {"fs_heave": cr.fs_heave, "fs_uplift": cr.fs_uplift, "allowable_gradient": cr.allowable_gradient,
             "source": "USACE ETL 1110-2-569 (2005) / EM 1110-2-1913 (2000), values from memory, unless set in "
                       "the section file"}
-    return ExitChecks(boundary=name, x=x, y=y, s=s - s[0], distance_from_toe=direction * (x - toe_x),
+    return ExitChecks(boundary=name, x=x, y=y, s=s - s[0], distance_from_toe=dist,
                       is_node=node.astype(np.int64), zone=zone, head=hs, gradient=gradient,
                       normal_gradient=normal_gradient, blanket_gradient=blanket, thickness=np.where(has, z, np.nan),
                       head_base=hb, h_excess=np.where(has, h_excess, np.nan), i_critical=ic, fs_heave=fs_heave,
                       fs_uplift=fs_uplift, fs=fs, passes=passes, wet=wet, criteria=crit, toe_x=toe_x,
                       toe_source=toe_src, top_stratum_method=tsm, notes=notes, missing=missing)
+
+
+def _stratum_notes(sec, cols, has, z, x, dist, name) -> list[str]:
+    """Warnings about the top stratum along a boundary: thin or wedge-shaped parts, layered columns."""
+    out = []
+    beyond = has & (dist >= 0)
+    med = float(np.median(z[beyond] if beyond.any() else z[has]))
+    thin = has & ((z < 0.5 * med) | (z < 0.3))
+    if thin.any():
+        k = np.flatnonzero(thin)
+        zones = sorted({sec.zone_names[zz] for p in k for zz, tt, bb in zip(*cols.layers_of(int(p)))
+                        if tt > cols.base[p] + 1e-9})
+        out.append(f"the top stratum under '{name}' is thin or wedge-shaped at x = {x[k].min():.2f} to "
+                   f"{x[k].max():.2f} m (down to {z[k].min():.3g} m, against {med:.3g} m beyond the toe; zone(s) "
+                   f"{', '.join(repr(v) for v in zones)}): checks over it govern only if that is the ground; if it "
+                   "is a modelling sliver, name the top stratum in checks.top_stratum")
+    if cols.rivals is not None and (cols.rivals[has] > 0).any():
+        k = np.flatnonzero(has & (cols.rivals > 0))
+        out.append(f"under x = {x[k].min():.2f} to {x[k].max():.2f} m more than one interface passes the contrast "
+                   f"({sec.spec.checks.contrast:g}): the sharpest was taken as the base of the top stratum; name the "
+                   "zones in checks.top_stratum if another is meant")
+    return out
 
 
 def _interior_angle(sec, p, line=None) -> float:

@@ -17,7 +17,15 @@ Pure functions (SI units; heads and lengths m, conductivities m/s, unit weights 
 * :func:`sellmeijer_2011`: Sellmeijer, J.B., Lopez de la Cruz, J., van Beek, V.M. and Knoeff, J.G.
   (2011), Fine-tuning of the backward erosion piping model through small-scale, medium-scale and
   IJkdijk experiments, Eur. J. Env. Civil Eng. 15(8), 1139-1154: critical head difference
-  H_c = F_R F_S F_G L (coefficients in the function; recalled from memory, marked so).
+  H_c = F_R F_S F_G L (coefficients in :data:`SELLMEIJER`; recalled from memory, marked so).
+* :func:`khosla_pressures`: the residual heads at the junction and the tip of a downstream cutoff
+  (Khosla, Bose and Taylor 1936, method of independent variables).
+* :func:`kozeny_drain`: Kozeny, J. (1931), Grundwasserbewegung bei freiem Spiegel, Fluss- und
+  Kanalversickerung, Wasserkraft und Wasserwirtschaft 26(3): the phreatic parabola of a homogeneous
+  section draining to a horizontal drain, y0 = sqrt(d^2 + h^2) - d, q = k y0.
+* :func:`casagrande_exit`: Casagrande, A. (1937), Seepage through dams, J. New England Water Works
+  Assoc. 51(2): exit of the phreatic line on a downstream slope beta <= 30 deg,
+  a = sqrt(d^2 + h^2) - sqrt(d^2 - h^2 cot^2 beta), q = k a sin^2 beta (from memory).
 
 Each function returns a dict; :mod:`seepfe.checks.report` applies them to a section and says where
 their assumptions do not hold instead of printing a number.
@@ -27,8 +35,8 @@ from __future__ import annotations
 
 import math
 
-__all__ = ["blanket_theory", "lane_creep", "khosla_exit_gradient", "terzaghi_heave", "sellmeijer_2011",
-           "LANE_RATIOS"]
+__all__ = ["blanket_theory", "lane_creep", "khosla_exit_gradient", "khosla_pressures", "terzaghi_heave",
+           "sellmeijer_2011", "kozeny_drain", "casagrande_exit", "LANE_RATIOS", "SELLMEIJER"]
 
 # Lane (1935) weighted creep ratios C_w (safe values), from memory
 LANE_RATIOS = {
@@ -42,12 +50,12 @@ LANE_RATIOS = {
 def _x_eff(c: float, L: float, end: str) -> float:
     """Effective length of a blanket of length L (m) beyond a toe, EM 1110-2-1913 App. B, m.
 
-    end = 'infinite': 1/c; 'open' (substratum exposed at the far end): tanh(cL)/c;
+    end = 'semi-infinite' (or 'infinite'): 1/c; 'open' (substratum exposed at the far end): tanh(cL)/c;
     'blocked' (far end closed to flow): 1/(c tanh(cL)); 'none' (no blanket, source at the toe): 0.
     """
     if end == "none" or L == 0:
         return 0.0
-    if end == "infinite":
+    if end in ("semi-infinite", "infinite"):
         return 1.0 / c
     if end == "open":
         return math.tanh(c * L) / c
@@ -57,7 +65,7 @@ def _x_eff(c: float, L: float, end: str) -> float:
 
 
 def blanket_theory(H: float, d: float, kf: float, *, zb_land: float, kb_land: float, L3: float,
-                   end3: str = "infinite", L2: float, zb_river: float = 0.0, kb_river: float = 0.0,
+                   end3: str = "semi-infinite", L2: float, zb_river: float = 0.0, kb_river: float = 0.0,
                    L1: float = 0.0, end1: str = "none", gamma_buoyant_land: float | None = None,
                    gamma_w: float = 9.81) -> dict:
     """USACE blanket theory (EM 1110-2-1913, App. B).
@@ -67,7 +75,8 @@ def blanket_theory(H: float, d: float, kf: float, *, zb_land: float, kb_land: fl
     H : net head on the levee (river level - landside level), m.
     d, kf : thickness (m) and horizontal conductivity (m/s) of the pervious substratum.
     zb_land, kb_land : thickness (m) and vertical conductivity (m/s) of the landside top stratum.
-    L3, end3 : length of the landside blanket beyond the toe (m) and its far end ('infinite', 'open', 'blocked').
+    L3, end3 : length of the landside blanket beyond the toe (m) and its far end ('semi-infinite', 'open',
+        'blocked').
     L2 : base width of the levee, toe to toe, m.
     zb_river, kb_river, L1, end1 : the same for the riverside blanket ('none' if the river meets the
         substratum at the riverside toe).
@@ -125,6 +134,41 @@ def khosla_exit_gradient(H: float, b: float, d: float) -> dict:
             "b_m": b, "d_m": d}
 
 
+def khosla_pressures(b: float, d: float) -> dict:
+    """Residual heads, as fractions of H, at the junction E of floor and downstream cutoff and at its tip D
+    (Khosla, Bose and Taylor 1936): phi_E = arccos((lambda - 2) / lambda) / pi,
+    phi_D = arccos((lambda - 1) / lambda) / pi, lambda = (1 + sqrt(1 + (b/d)^2)) / 2 (from memory).
+
+    A single sheet pile (b = 0, lambda = 1) gives phi_E = 1 and phi_D = 1/2, the exact values of the
+    conformal solution (Harr 1962).
+    """
+    lam = (1.0 + math.sqrt(1.0 + (b / d) ** 2)) / 2.0
+    return {"lambda": lam, "phi_e": math.acos((lam - 2.0) / lam) / math.pi,
+            "phi_d": math.acos((lam - 1.0) / lam) / math.pi}
+
+
+def kozeny_drain(h: float, d: float, k: float) -> dict:
+    """Kozeny (1931): phreatic parabola to a horizontal drain: y0 = sqrt(d^2 + h^2) - d (m), q = k y0.
+
+    h : head above the base, m. d : horizontal distance from the parabola's entry point to the focus
+    (the drain's upstream end), m. k : conductivity, m/s. The vertex lies y0 / 2 upstream of the focus.
+    """
+    y0 = math.sqrt(d * d + h * h) - d
+    return {"y0_m": y0, "q_m3_s_per_m": k * y0, "vertex_offset_m": y0 / 2.0}
+
+
+def casagrande_exit(h: float, d: float, beta: float, k: float) -> dict | None:
+    """Casagrande (1937): wetted length a (m, along the slope) of a downstream slope at angle beta (rad,
+    up to 30 deg) above the toe, a = sqrt(d^2 + h^2) - sqrt(d^2 - h^2 cot^2 beta), and q = k a sin^2 beta;
+    None where d^2 < h^2 cot^2 beta (from memory)."""
+    cot = 1.0 / math.tan(beta)
+    disc = d * d - h * h * cot * cot
+    if disc < 0:
+        return None
+    a = math.sqrt(d * d + h * h) - math.sqrt(disc)
+    return {"a_m": a, "q_m3_s_per_m": k * a * math.sin(beta) ** 2}
+
+
 def terzaghi_heave(d: float, h_a: float, gamma_buoyant: float, gamma_w: float = 9.81) -> dict:
     """Terzaghi (1943): prism d deep, d/2 wide beside a sheet pile; FS = gamma' d / (gamma_w h_a).
 
@@ -141,18 +185,21 @@ def terzaghi_heave(d: float, h_a: float, gamma_buoyant: float, gamma_w: float = 
 SELLMEIJER = {
     "eta": 0.25,                 # White's drag coefficient (-)
     "theta_deg": 37.0,           # bedding angle (deg)
-    "gamma_p_sub": 16.5,         # submerged unit weight of the grains, kN/m3
+    # gamma_p' / gamma_w = 16.5 / 10 = 1.65: the submerged grain unit weight over water's as the rule was
+    # calibrated (from memory). Taking the section's gamma_w = 9.81 would give 1.68, a critical head 2 %
+    # higher: the unsafe side, so the calibrated ratio is kept whatever the section's gamma_w.
+    "grain_ratio": 1.65,
     "d70_m": 2.08e-4,            # reference d70 of the small-scale tests, m
     "nu_m2_s": 1.33e-6,          # kinematic viscosity of water at about 10 degC, m2/s
     "g_m_s2": 9.81,
 }
 
 
-def sellmeijer_2011(L: float, D: float, d70: float, k: float, gamma_w: float = 9.81) -> dict:
+def sellmeijer_2011(L: float, D: float, d70: float, k: float) -> dict:
     """Critical head difference for backward erosion piping, revised rule of Sellmeijer et al. (2011).
 
     H_c = F_R F_S F_G L with
-    F_R = eta (gamma_p' / gamma_w) tan(theta), F_S = d70_m / (kappa L)^(1/3) (d70 / d70_m)^0.4,
+    F_R = eta (gamma_p' / gamma_w) tan(theta) with gamma_p' / gamma_w = 1.65 (see :data:`SELLMEIJER`), F_S = d70_m / (kappa L)^(1/3) (d70 / d70_m)^0.4,
     F_G = 0.91 (D/L)^(0.28 / ((D/L)^2.8 - 1) + 0.04), kappa = nu k / g (intrinsic permeability, m2).
     The relative-density, uniformity and grain-shape factors of the full rule are taken at their
     reference values (1), as in common Dutch practice (from memory).
@@ -161,7 +208,7 @@ def sellmeijer_2011(L: float, D: float, d70: float, k: float, gamma_w: float = 9
     """
     s = SELLMEIJER
     kappa = s["nu_m2_s"] * k / s["g_m_s2"]
-    FR = s["eta"] * s["gamma_p_sub"] / gamma_w * math.tan(math.radians(s["theta_deg"]))
+    FR = s["eta"] * s["grain_ratio"] * math.tan(math.radians(s["theta_deg"]))
     FS = s["d70_m"] / (kappa * L) ** (1.0 / 3.0) * (d70 / s["d70_m"]) ** 0.4
     r = D / L
     FG = 0.91 * r ** (0.28 / (r ** 2.8 - 1.0) + 0.04)

@@ -2,9 +2,18 @@
 
 A vertical line is dropped from each surface point through the zone polygons (shapely, vectorised
 over the points, one call per zone); the intervals it crosses, sorted from the top, are the column.
-The top stratum is everything from the surface down to the base of the first layer that is
-markedly less pervious (vertical conductivity at least ``contrast`` times smaller) than the layer
-directly below it, or down to a depth the user gives.
+
+The top stratum is what an engineer calls it: the low-permeability layer(s) at the surface over the
+pervious substratum. Its base is found, at each point, in this order:
+
+1. ``checks.top_stratum`` (zone names): the base of the deepest of those zones in the column (with
+   everything above it, an embankment's fill included);
+2. ``checks.top_stratum_depth``: that depth below the surface;
+3. otherwise the interface where the column turns markedly more pervious: of the interfaces where
+   the vertical conductivity below is at least ``contrast`` times the equivalent vertical
+   conductivity of everything above (thickness / sum(t / k_v), layers in series), the one with the
+   largest such ratio. A sliver of embankment fill over a clay blanket over sand is thus taken with
+   the blanket (fill/blanket may pass the contrast, blanket/sand passes it far more), never alone.
 """
 
 from __future__ import annotations
@@ -46,7 +55,9 @@ class Columns:
 
     point : (L,) index of the surface point; zone : (L,) zone index; top, bottom : (L,) elevations, m.
     base : (n,) elevation of the base of the top stratum, m (nan: none); thickness : (n,) m (nan: none);
-    n_top : (n,) number of layers (from the top) in the top stratum; how : (n,) 'zones', 'depth' or ''.
+    n_top : (n,) number of layers (from the top) in the top stratum; how : (n,) 'names', 'depth',
+    'contrast' or ''; rivals : (n,) number of other interfaces that also passed the contrast with a
+    ratio within a factor of 10 of the chosen one (layered columns: the choice is worth a look).
     """
 
     point: np.ndarray
@@ -57,6 +68,7 @@ class Columns:
     thickness: np.ndarray
     n_top: np.ndarray
     how: np.ndarray
+    rivals: np.ndarray = None
 
     def layers_of(self, i: int):
         """(zone, top, bottom) arrays of point i, from the top."""
@@ -64,23 +76,33 @@ class Columns:
         return self.zone[s], self.top[s], self.bottom[s]
 
 
-def columns(section, x: np.ndarray, y: np.ndarray, contrast: float = 10.0,
-            depth: float | None = None) -> Columns:
+def columns(section, x: np.ndarray, y: np.ndarray, contrast: float | None = None,
+            depth: float | None = None, names: list[str] | None = None) -> Columns:
     """Drop a vertical from each surface point (x, y) and find the layers and the top stratum.
 
     Parameters
     ----------
     section : Section
     x, y : (n,) surface points, m.
-    contrast : ratio of vertical conductivities that makes a layer 'markedly less pervious' (-).
-    depth : optional depth of the base of the top stratum below each point, m (overrides the search).
+    contrast : ratio of vertical conductivities that makes the substratum 'markedly more pervious' (-)
+        (default ``checks.contrast``).
+    depth : depth of the base of the top stratum below each point, m (default ``checks.top_stratum_depth``).
+    names : zones that make up the top stratum (default ``checks.top_stratum``).
     """
+    c = section.spec.checks
+    contrast = c.contrast if contrast is None else contrast
+    depth = c.top_stratum_depth if depth is None else depth
+    names = getattr(c, "top_stratum", None) if names is None else names
     x = np.asarray(x, float)
     y = np.asarray(y, float)
     n = len(x)
     ymin = section.outline.bounds[1]
     tol = max(section.length_tol, 1e-9)
-    lines = shapely.linestrings(np.stack([np.stack([x, y + tol], 1), np.stack([x, np.full(n, ymin - 1.0)], 1)], 1))
+    # the vertical is dropped a hair to the right of x, so that a point on a vertical zone edge (a
+    # cutoff's face, a drain's side) sees one column, not both zones at once
+    dx = 1e-6 * section.extent
+    xv = np.where(x + dx < section.outline.bounds[2], x + dx, x - dx)
+    lines = shapely.linestrings(np.stack([np.stack([xv, y + tol], 1), np.stack([xv, np.full(n, ymin - 1.0)], 1)], 1))
     pts, zs, tops, bots = [], [], [], []
     for zi, poly in enumerate(section.polygons):
         inter = shapely.intersection(lines, shapely.Polygon(poly))
@@ -102,8 +124,28 @@ def columns(section, x: np.ndarray, y: np.ndarray, contrast: float = 10.0,
     point, zone, top, bottom = point[o], zone[o], top[o], bottom[o]
     base = np.full(n, np.nan)
     n_top = np.zeros(n, np.int64)
+    rivals = np.zeros(n, np.int64)
     how = np.full(n, "", dtype=object)
-    if depth is not None:
+    # layer j and j + 1 are one column without a gap
+    nxt = np.zeros(len(point), bool)
+    nxt[:-1] = (point[1:] == point[:-1]) & (np.abs(bottom[:-1] - top[1:]) <= 10 * tol)
+    if names is not None:
+        idx = [section.zone_names.index(nm) for nm in names if nm in section.zone_names]
+        if len(point):
+            first = np.r_[True, point[1:] != point[:-1]]
+            newrun = first | ~np.r_[False, nxt[:-1]]           # a point's first layer, or after a gap
+            run = np.cumsum(newrun)
+            run_first = run[np.flatnonzero(first)][np.cumsum(first) - 1]
+            ok = np.isin(zone, idx) & (run == run_first)       # in the named zones, no gap from the surface
+            cand = np.flatnonzero(ok)
+            if len(cand):
+                pc = point[cand]
+                j = cand[np.r_[pc[1:] != pc[:-1], True]]        # the deepest such layer of each point
+                pu = point[j]
+                base[pu] = bottom[j]
+                n_top[pu] = j - np.searchsorted(point, pu) + 1
+                how[pu] = "names"
+    elif depth is not None:
         base = y - depth
         colbot = np.full(n, np.inf)
         np.minimum.at(colbot, point, bottom)
@@ -111,25 +153,38 @@ def columns(section, x: np.ndarray, y: np.ndarray, contrast: float = 10.0,
         base[~ok] = np.nan
         n_top = np.bincount(point[top > base[point] + tol], minlength=n) if len(point) else n_top
         how[ok] = "depth"
-    else:
+    elif len(point):
         kv = section.zone_tensors()[:, 1, 1]
         k = kv[zone]
-        nxt = np.zeros(len(point), bool)
-        nxt[:-1] = (point[1:] == point[:-1]) & (np.abs(bottom[:-1] - top[1:]) <= 10 * tol)
-        ratio = np.ones(len(point))
-        ratio[:-1] = np.where(nxt[:-1], k[1:] / k[:-1], 1.0)
+        t = top - bottom
+        first = np.r_[True, point[1:] != point[:-1]]
+        start = np.flatnonzero(first)
+        grp = np.cumsum(first) - 1
+        ct, cr = np.cumsum(t), np.cumsum(t / k)
+        cum_t = ct - (ct - t)[start][grp]
+        cum_r = cr - (cr - t / k)[start][grp]
+        keq = cum_t / cum_r                               # series (harmonic) k of everything above the interface
+        ratio = np.zeros(len(point))
+        ratio[:-1] = np.where(nxt[:-1], k[1:] / keq[:-1], 0.0)
         cand = np.flatnonzero(nxt & (ratio >= contrast))
         if len(cand):
-            pu, first = np.unique(point[cand], return_index=True)
-            j = cand[first]
+            oo = np.lexsort((-ratio[cand], point[cand]))
+            cand = cand[oo]
+            pc = point[cand]
+            head = np.r_[True, pc[1:] != pc[:-1]]
+            j = cand[head]
+            pu = point[j]
             base[pu] = bottom[j]
-            start = np.searchsorted(point, pu)
-            n_top[pu] = j - start + 1
-            how[pu] = "zones"
+            n_top[pu] = j - np.searchsorted(point, pu) + 1
+            how[pu] = "contrast"
+            # rivals: other interfaces within a factor of 10 of the sharpest (a layered column worth a look)
+            best = np.repeat(ratio[j], np.diff(np.r_[np.flatnonzero(head), len(cand)]))
+            close = ratio[cand] >= 0.1 * best
+            rivals[pu] = np.bincount(pc[close], minlength=n)[pu] - 1
     thickness = y - base
     thickness[~np.isfinite(base)] = np.nan
     return Columns(point=point, zone=zone, top=top, bottom=bottom, base=base, thickness=thickness,
-                   n_top=n_top, how=how)
+                   n_top=n_top, how=how, rivals=rivals)
 
 
 def stratum_weight(section, cols: Columns, n: int) -> np.ndarray:

@@ -78,6 +78,9 @@ def exit_gradient_figure(profile, title: str | None = None, required_fs: float |
     fs = _arr(profile.fs, n, order)
     fsh = _arr(_get(profile, ["fs_heave"]), n, order)
     fsu = _arr(_get(profile, ["fs_uplift"]), n, order)
+    thick = _arr(_get(profile, ["thickness"]), n, order)
+    if thick is not None and not np.isfinite(thick).any():
+        thick = None
     ic = _arr(_get(profile, ["i_critical", "critical_gradient"]), n, order)
     crit = dict(_get(profile, ["criteria"], {}) or {})
     req_h = crit.get("fs_heave") or required_fs or 1.0
@@ -94,14 +97,17 @@ def exit_gradient_figure(profile, title: str | None = None, required_fs: float |
     blue, orange, red, green = OKABE_ITO["blue"], OKABE_ITO["orange"], OKABE_ITO["vermillion"], OKABE_ITO["green"]
     shade = tint(red, 0.8)
     with style():
-        fig = Figure(figsize=(FIG_WIDTH_IN, 5.2))
+        rows = 3 if thick is not None else 2
+        fig = Figure(figsize=(FIG_WIDTH_IN, 6.2 if rows == 3 else 5.2))
         from matplotlib.backends.backend_agg import FigureCanvasAgg
         FigureCanvasAgg(fig)
-        gs = fig.add_gridspec(2, 1, height_ratios=[1.3, 1.0], hspace=0.1, left=0.1, right=0.97, top=0.91,
-                              bottom=0.27)
+        gs = fig.add_gridspec(rows, 1, height_ratios=[1.3, 1.0, 0.5][:rows], hspace=0.12, left=0.1, right=0.97,
+                              top=0.92, bottom=0.24 if rows == 3 else 0.27)
         a1 = fig.add_subplot(gs[0])
         a2 = fig.add_subplot(gs[1], sharex=a1)
-        for a in (a1, a2):
+        a3 = fig.add_subplot(gs[2], sharex=a1) if rows == 3 else None
+        panels = (a1, a2) + ((a3,) if a3 is not None else ())
+        for a in panels:
             for s0, s1 in stretches:
                 a.axvspan(s0, s1, color=shade, lw=0, zorder=0)
         handles = [Line2D([], [], color=blue, lw=1.6, label="vertical exit gradient at the surface")]
@@ -150,12 +156,22 @@ def exit_gradient_figure(profile, title: str | None = None, required_fs: float |
             a2.text(d[-1], r, lab + " ", ha="right", va="bottom", fontsize=7, color=INK)
         a2.set_ylim(0, cap)
         a2.set_ylabel("factor of safety (-)")
-        a2.set_xlabel("distance from the landside toe (m)")
+        last = a2
+        if a3 is not None:
+            a2.tick_params(labelbottom=False)
+            a3.fill_between(d, 0, np.nan_to_num(thick, nan=0.0), color=tint(OKABE_ITO["orange"], 0.55), lw=0,
+                            step=None, zorder=2)
+            a3.plot(d, thick, color=OKABE_ITO["orange"], lw=1.0, zorder=3)
+            a3.set_ylim(0, float(np.nanmax(thick)) * 1.25)
+            a3.set_ylabel("top stratum\nthickness (m)")
+            a3.invert_yaxis()                     # drawn down from the surface, as in a section
+            last = a3
+        last.set_xlabel("distance from the landside toe (m)")
         if any(np.any(np.nan_to_num(v, nan=0.0) > cap) for v in shown):
             a2.text(0.005, 0.97, f"values above {cap:g} drawn at {cap:g}", transform=a2.transAxes, ha="left",
                     va="top", fontsize=6.5, color=MUTED)
         a2.set_xlim(d[0], d[-1])
-        for a in (a1, a2):
+        for a in panels:
             a.grid(axis="y", color="#e6e6e6", lw=0.5, zorder=-1)
         fz = np.where(np.isfinite(fs), fs, np.inf)
         if np.isfinite(fz).any():
@@ -166,10 +182,11 @@ def exit_gradient_figure(profile, title: str | None = None, required_fs: float |
         if stretches:
             tot = sum(b - a for a, b in stretches)
             handles.append(Patch(color=shade, label=f"fails the criteria ({tot:.1f} m in all)"))
-        fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.1, 0.165), ncol=2, borderaxespad=0.0,
+        yl = 0.135 if a3 is not None else 0.165
+        fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.1, yl), ncol=2, borderaxespad=0.0,
                    columnspacing=1.6)
         method = _get(profile, ["method"])
         if method:
-            fig.text(0.1, 0.175, f"gradients: {method}", ha="left", va="bottom", fontsize=6.5, color=MUTED)
+            fig.text(0.1, yl + 0.01, f"gradients: {method}", ha="left", va="bottom", fontsize=6.5, color=MUTED)
     fig.seepfe_failing = stretches
     return fig
