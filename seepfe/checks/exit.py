@@ -243,9 +243,10 @@ def default_boundaries(section) -> list[str]:
 
 
 def infer_toe(section, line: np.ndarray) -> tuple[float, str]:
-    """x of the landside toe: checks.toe_x; else, walking the boundary from its end nearer the crest,
-    the foot of the last stretch steeper than 1V:10H (a seepage face on the landside slope ends at the
-    toe); else the end of the boundary nearer the crest."""
+    """x of the landside (downstream) toe: ``checks.toe_x``; else, walking the boundary from its end
+    nearer the crest, the foot of the slope it starts on (its first stretch steeper than 1V:10H: an
+    embankment's landside slope, a dam's downstream face, however far the slope runs); else, where the
+    boundary starts on level ground, that end."""
     c = section.spec.checks
     if c.toe_x is not None:
         return float(c.toe_x), "checks.toe_x"
@@ -257,10 +258,10 @@ def infer_toe(section, line: np.ndarray) -> tuple[float, str]:
     pts = line if i == 0 else line[::-1]
     d = np.diff(pts, axis=0)
     steep = np.abs(d[:, 1]) > 0.1 * np.abs(d[:, 0])
-    if steep.any() and not steep.all():
-        k = int(np.flatnonzero(steep).max())
-        return float(pts[k + 1, 0]), "inferred: foot of the slope on the boundary"
-    return float(ends[i]), "inferred: end of the boundary nearer the crest"
+    if steep[0]:
+        k = int(np.argmin(steep)) if not steep.all() else len(steep)
+        return float(pts[k, 0]), "inferred: foot of the slope the boundary starts on"
+    return float(ends[i]), "inferred: the end of the boundary nearer the crest"
 
 
 def _edge_elements(mesh, edges):

@@ -366,17 +366,21 @@ def _khosla(st: _Setting) -> HandMethod:
     i = int(np.argmin(np.abs(ex.x - xcut) + np.abs(ex.y - y0)))
     fe = float(ex.gradient[i])
     kp = hm.khosla_pressures(b, d)
+    # Khosla's correction of the junction pressure for the interference of the other cutoffs on the floor:
+    # C = 19 sqrt(D / b') (d + D) / b per cent of H, subtracted downstream of them (from memory)
+    corr = sum(hm.khosla_interference(cu["top_m"] - cu["tip_m"], d, abs(cu["x_m"] - xcut), b) for cu in ups
+               if abs(cu["x_m"] - xcut) > 10 * tol)
+    phi_e = kp["phi_e"] - corr
     d_s = 1e-6 * sec.extent
     xin = xcut - math.copysign(d_s, float(path[-1][0] - path[0][0]) or 1.0)
     h_e = float(result.head([[xin, y0 - d_s]])[0]) - st.land_level
     h_d = float(result.head([[xcut, y0 - d + d_s]])[0] if not notch else
                 result.head([[notch["x_m"], notch["tip_m"] - d_s]])[0]) - st.land_level
     m = HandMethod("khosla", True, f"floor {b:.3g} m long with a {d:.3g} m cutoff at its downstream end"
-                   + (f" and {len(ups)} more cutoff(s) upstream (Khosla's exit gradient depends on the downstream one; "
-                      "the others change it slightly: the FE includes them)" if ups else ""),
+                   + (f" and {len(ups)} more cutoff(s) upstream" if ups else ""),
                    values={"exit_gradient": (r["exit_gradient"], fe),
-                           "residual_head_e_m": (kp["phi_e"] * st.H, h_e),
-                           "residual_head_d_m": (kp["phi_d"] * st.H, h_d)},
+                           "residual_head_e_m": (phi_e * st.H, h_e),
+                           "residual_head_d_m": (None if ups else kp["phi_d"] * st.H, h_d)},
                    assumptions="Khosla, Bose and Taylor (1936): a thin floor of length b with a vertical cutoff of "
                                "depth d at its downstream end on an infinitely deep, homogeneous, isotropic foundation; "
                                "G_E = H / (d pi sqrt(lambda)), lambda = (1 + sqrt(1 + (b/d)^2)) / 2; residual heads at "
@@ -388,6 +392,13 @@ def _khosla(st: _Setting) -> HandMethod:
     m.add_input("alpha", r["alpha"], "-", "b / d")
     m.add_input("lambda", r["lambda"], "-", "(1 + sqrt(1 + alpha^2)) / 2")
     m.add_input("foundation_depth_m", T, "m", "depth of the foundation below the floor")
+    m.add_input("phi_e", kp["phi_e"], "-", "residual head at E as a fraction of H, before corrections")
+    m.add_input("interference", corr, "-", "correction of phi_E for the other cutoffs on the floor")
+    m.add_input("phi_d", kp["phi_d"], "-", "residual head at D as a fraction of H")
+    if ups:
+        m.notes.append("Khosla: with cutoffs upstream the exit gradient formula still takes only the downstream "
+                       "cutoff; it then errs high (the safe side). The tip head D is not given: the interference "
+                       "corrections cover the junction E only.")
     m.details["fe_at_x_m"] = float(ex.x[i])
     return m
 
@@ -722,19 +733,18 @@ def _dam(st: _Setting) -> tuple[_Dam | None, str]:
     if st.H <= 0 or st.up.head <= base:
         return None, "no reservoir above the base"
     h = float(st.up.head) - base
-    # upstream face: where the reservoir level meets it, and the heel
-    xs = np.linspace(*sec.outline.bounds[0::2], 4001)
-    top = _top_envelope(sec, xs)
-    crest_x = float(xs[np.nanargmax(top)])
+    # upstream face: where the reservoir level meets it (exactly, on the outline), and the heel
+    x0, y0, x1, y1 = sec.outline.bounds
+    ring = np.asarray(sec.outline.exterior.coords)
+    crest_x = float(ring[ring[:, 1] >= y1 - st.tol, 0].mean())
     sgn = 1.0 if float(up[:, 0].mean()) < crest_x else -1.0
-    side = (xs - crest_x) * sgn < 0
-    wet_x = xs[side & (top <= st.up.head)]
-    dry_x = xs[side & (top > st.up.head)]
-    heel_x = xs[side & (top <= base + st.tol)]
-    if not len(wet_x) or not len(dry_x) or not len(heel_x):
+    cut = sec.outline.exterior.intersection(LineString([(x0 - 1, st.up.head), (x1 + 1, st.up.head)]))
+    xs = [g.x for g in getattr(cut, "geoms", [cut]) if hasattr(g, "x") and (g.x - crest_x) * sgn < 0]
+    on_base = up[np.abs(up[:, 1] - base) <= st.tol, 0]
+    if not xs or not len(on_base):
         return None, "cannot find the upstream face between the reservoir bed and the crest"
-    x_wet = float(dry_x.min() if sgn > 0 else dry_x.max())
-    x_heel = float(heel_x.max() if sgn > 0 else heel_x.min())
+    x_wet = max(xs) if sgn > 0 else min(xs)
+    x_heel = float(on_base.max() if sgn > 0 else on_base.min())
     return _Dam(math.sqrt(kx * ky), math.sqrt(ky / kx), base, h, x_heel, x_wet, sgn, above), ""
 
 

@@ -35,7 +35,7 @@ from __future__ import annotations
 
 import math
 
-__all__ = ["blanket_theory", "lane_creep", "khosla_exit_gradient", "khosla_pressures", "terzaghi_heave",
+__all__ = ["blanket_theory", "lane_creep", "khosla_exit_gradient", "khosla_pressures", "khosla_interference", "terzaghi_heave",
            "sellmeijer_2011", "kozeny_drain", "casagrande_exit", "LANE_RATIOS", "SELLMEIJER"]
 
 # Lane (1935) weighted creep ratios C_w (safe values), from memory
@@ -145,6 +145,14 @@ def khosla_pressures(b: float, d: float) -> dict:
     lam = (1.0 + math.sqrt(1.0 + (b / d) ** 2)) / 2.0
     return {"lambda": lam, "phi_e": math.acos((lam - 2.0) / lam) / math.pi,
             "phi_d": math.acos((lam - 1.0) / lam) / math.pi}
+
+
+def khosla_interference(D: float, d: float, b_between: float, b: float) -> float:
+    """Khosla, Bose and Taylor (1936): correction, as a fraction of H, of the pressure at a cutoff of depth d
+    for another cutoff of depth D a distance b_between away on a floor of total length b,
+    C = 0.19 sqrt(D / b') (d + D) / b (19 per cent in the original; from memory). It raises the pressure
+    upstream of the other cutoff and lowers it downstream."""
+    return 0.19 * math.sqrt(D / b_between) * (d + D) / b
 
 
 def kozeny_drain(h: float, d: float, k: float) -> dict:
