@@ -229,3 +229,19 @@ def test_casagrande_beside_the_fe_and_where_it_stops():
     # a 1:1.5 slope (33.7 deg) is beyond the closed form: not applicable, and why
     m = seepfe.analyse(seepfe.solve(_dam(drain=False, ds=1.5))).hand_method("casagrande")
     assert not m.applies and "30 deg" in m.why
+
+
+def test_truncation_boundaries_are_never_a_creep_path():
+    # the upstream water and the exit are separated by a boundary that is not a structure contact (a
+    # zero-flux strip); the only no-flow outline between them runs round the model's ends and base:
+    # Lane and Khosla say they do not apply, rather than count 2 x 12 + 144 m of model truncation
+    d = _sheet_pile()
+    d.pop("barriers")
+    d["boundaries"] = [{"name": "upstream", "polyline": [[-72, 0], [-1, 0]], "head": 4.0},
+                       {"name": "strip", "polyline": [[-1, 0], [1, 0]], "flux": 0.0},
+                       {"name": "downstream", "polyline": [[1, 0], [72, 0]], "seepage_face": True}]
+    a = seepfe.analyse(seepfe.solve(d))
+    for method in ("lane", "khosla"):
+        m = a.hand_method(method)
+        assert not m.applies and "truncation" in m.why, (method, m.why)
+    assert not any("cut into the outline" in c["source"] for c in a.cutoffs)
