@@ -18,6 +18,8 @@ def run(args) -> int:
     m = make_mesh(sec, order=args.order)
     s = sec.spec
     print(f"{sec.source}: valid. {s.title}")
+    for w in sec.warnings:
+        print(f"warning: {w}")
     print(table("materials", ["name", "kx (m/s)", "ky (m/s)", "angle (deg)", "unit weight (kN/m3)"],
                 [[n, f"{(x.k or x.kx):.3g}", f"{(x.k or x.ky):.3g}", f"{x.angle:g}",
                   "-" if x.unit_weight is None else f"{x.unit_weight:g}"] for n, x in s.materials.items()]))
