@@ -19,7 +19,7 @@ from ..about import CAUTION
 __all__ = ["main", "build_parser", "SUBCOMMANDS"]
 
 #: subcommand modules, in the order ``--help`` lists them
-SUBCOMMANDS = ["check", "solve", "sweep", "plot", "report"]
+SUBCOMMANDS = ["build", "check", "solve", "sweep", "plot", "report"]
 
 
 def build_parser() -> argparse.ArgumentParser:
