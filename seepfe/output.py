@@ -83,6 +83,9 @@ def write_analysis(analysis, folder: Path) -> list[str]:
         f = f"checks_{safe_name(name)}.csv"
         ex.to_csv(folder / f)
         names.append(f)
+    from .export import copy_inputs, write_lines
+    names += write_lines(analysis, folder)
+    names += copy_inputs(folder, analysis.result.section)
     return names
 
 

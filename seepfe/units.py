@@ -28,7 +28,7 @@ from typing import Any, Optional
 from .errors import SectionError
 
 __all__ = ["Dim", "Units", "FACTORS", "PRESETS", "DIMENSIONS", "parse_units", "to_si", "dimension_of",
-           "SI", "US", "K_RANGE", "unit_dimension", "conductivity_hints", "json_schema", "describe"]
+           "SI", "US", "K_RANGE", "unit_dimension", "conductivity_hints", "json_schema", "describe", "column_suffix"]
 
 _FT = Fraction(3048, 10000)                                  # m, exact (international foot)
 _LBF = Fraction(45359237, 10 ** 8) * Fraction(980665, 10 ** 5)  # N, exact (pound-force)
@@ -205,6 +205,14 @@ def describe(dim: str) -> str:
         return ""
     word = {"flux": "conductivity unit", "per_length": "per length unit"}.get(dim, f"{dim.replace('_', ' ')} unit")
     return f" [the file's {word}: {choices[0]} by default; {', '.join(choices[1:])} by \"units\"]"
+
+
+def column_suffix(unit: str) -> str:
+    """A unit as the end of a CSV column name: 'ft' -> 'ft', 'ft/day' -> 'ft_day', 'ft3/day per ft' ->
+    'ft3_day_per_ft', 'kN/m3' -> 'kN_m3', '-' -> '1'."""
+    if unit in ("-", "", "1"):
+        return "1"
+    return re.sub(r"[^A-Za-z0-9]+", "_", unit).strip("_")
 
 
 def json_str(v) -> str:
