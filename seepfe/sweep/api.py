@@ -16,6 +16,7 @@ cases whose resolved input changed.
 from __future__ import annotations
 
 import math
+import os
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -281,12 +282,12 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
                      "(what seepfe solve prints for the same input)")
     rep.wall_s = time.perf_counter() - t0
     if rep.complete and out is not None:
-        _write(rep, out, spec, slabel, sec, sopts, points, columns if spec.vary else {}, profiles, plots)
+        _write(rep, out, spec, slabel, sec, sopts, points, columns if spec.vary else {}, profiles, plots, sweep)
     return rep
 
 
 def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts, points, columns, profiles,
-           plots: bool) -> None:
+           plots: bool, sweep_src=None) -> None:
     from ..about import __version__
     from ..output import atomic_dir, write_json
     from . import report
@@ -363,6 +364,9 @@ def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts
             "note": "cases/ beside this folder caches every finished case by the sha256 of its resolved input; "
                     "delete it to force a full rerun.",
         }
+        from ..export import copy_inputs
+        sname = Path(sweep_src).name if isinstance(sweep_src, (str, os.PathLike)) else "sweep.json"
+        meta["files"] += copy_inputs(tmp, sec, {sname: sweep_src if sweep_src is not None else {}})
         write_json(tmp / "sweep.json", meta)
         files.append("sweep.json")
     rep.results_dir = out / "results"
