@@ -44,3 +44,34 @@ def test_solve_refuses_a_foreign_folder(tmp_path, capsys):
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and err[0].startswith("seepfe: error:")
     assert (foreign / "notes.txt").read_text() == "keep me"
+
+
+def test_a_missing_gmsh_library_is_one_line_naming_the_packages(monkeypatch, capsys):
+    import importlib.abc
+    import re
+    import sys
+
+    from seepfe.mesh import GMSH_SYSTEM_PACKAGES
+
+    class NoGLU(importlib.abc.MetaPathFinder):
+        def find_spec(self, name, path=None, target=None):
+            if name == "gmsh":
+                raise OSError("libGLU.so.1: cannot open shared object file: No such file or directory")
+            return None
+
+    monkeypatch.delitem(sys.modules, "gmsh", raising=False)
+    monkeypatch.setattr(sys, "meta_path", [NoGLU()] + sys.meta_path)
+    assert main(["check", str(DEMO), "--order", "1"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "libGLU.so.1" in err[0] and "libglu1-mesa" in err[0]
+    # the same packages as scripts/install.sh installs
+    sh = (DEMO.parent.parent / "scripts" / "install.sh").read_text()
+    assert re.search(r'GMSH_LIBS="([^"]+)"', sh).group(1).split() == GMSH_SYSTEM_PACKAGES.split()
+
+
+def test_python_m_seepfe_runs_the_command_line():
+    import subprocess
+    import sys
+    root = DEMO.parent.parent
+    p = subprocess.run([sys.executable, "-m", "seepfe", "--version"], capture_output=True, text=True, cwd=root)
+    assert p.returncode == 0 and p.stdout.startswith("seepfe ")

@@ -78,4 +78,4 @@ def figure_set(result, show_mesh: bool = False, arrows: bool = False, quantity: 
             continue
         safe = "".join(c if c.isalnum() or c in "-_" else "_" for c in name)
         yield FigureItem(f"exit_gradient_{safe}", f"Exit gradients and factor of safety along '{name}'",
-                         exit_gradient_figure(prof, title=f"Exit gradients along '{name}'"))
+                         exit_gradient_figure(prof, title=f"Exit gradients along '{name}'", units=sec.units))
