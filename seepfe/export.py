@@ -85,24 +85,13 @@ _VALUE = {"phreatic_line": ("pressure_head_m", "length"),
 
 def _csv(path: Path, items: list, value_col: str, dim: str, units) -> None:
     from .output import write_csv
-    from .units import SI
+    from .units import SI, display_columns
     rows = [(i, it["value"], it["points"]) for i, it in enumerate(items)]
     pts = np.vstack([p for _, _, p in rows]) if rows else np.empty((0, 2))
     line = np.concatenate([np.full(len(p), i) for i, _, p in rows]) if rows else np.empty(0)
     val = np.concatenate([np.full(len(p), v) for _, v, p in rows]) if rows else np.empty(0)
     cols = {"line": line, value_col: val, "x_m": pts[:, 0], "y_m": pts[:, 1]}
-    if units is not None and units != SI:
-        from .units import column_suffix
-        L = units.factor("length")
-        if units.length != "m":
-            cols[f"x_{column_suffix(units.label('length'))}"] = pts[:, 0] / L
-            cols[f"y_{column_suffix(units.label('length'))}"] = pts[:, 1] / L
-        if dim == "length" and units.length != "m":
-            cols[value_col.removesuffix("_m") + f"_{column_suffix(units.label('length'))}"] = val / L
-        if dim == "flow" and units.label("flow") != "m3/s per m":
-            cols[value_col.removesuffix("_m3_s_per_m") + f"_{column_suffix(units.label('flow'))}"] = \
-                val / units.factor("flow")
-    write_csv(path, cols)
+    write_csv(path, display_columns(cols, units if units is not None else SI))
 
 
 def write_lines(analysis, folder, units=None) -> list[str]:

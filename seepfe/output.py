@@ -81,7 +81,7 @@ def write_analysis(analysis, folder: Path) -> list[str]:
     names = ["summary.json", "nodes.csv", "elements.csv", "result.vtu"]
     for name, ex in analysis.exits.items():
         f = f"checks_{safe_name(name)}.csv"
-        ex.to_csv(folder / f)
+        ex.to_csv(folder / f, units=analysis.result.section.units)
         names.append(f)
     from .export import copy_inputs, write_lines
     names += write_lines(analysis, folder)
@@ -97,15 +97,17 @@ def write_result(result, folder: Path, summary: dict | None = None) -> None:
     m = result.mesh
     if summary is not None:
         write_json(folder / "summary.json", summary)
-    write_csv(folder / "nodes.csv", {
+    from .units import display_columns
+    units = result.section.units          # SI columns, then the same in the file's units where they differ
+    write_csv(folder / "nodes.csv", display_columns({
         "node": np.arange(m.n_nodes), "x_m": m.points[:, 0], "y_m": m.points[:, 1],
         "total_head_m": result.h, "pressure_head_m": result.pressure_head,
-        "pore_pressure_kPa": result.pore_pressure})
+        "pore_pressure_kPa": result.pore_pressure}, units))
     g, v = result.element_gradient, result.velocity
     c = m.points[m.triangles].mean(axis=1)
-    write_csv(folder / "elements.csv", {
+    write_csv(folder / "elements.csv", display_columns({
         "element": np.arange(m.n_elements), "zone": m.zone, "xc_m": c[:, 0], "yc_m": c[:, 1],
-        "dh_dx_m_per_m": g[:, 0], "dh_dy_m_per_m": g[:, 1], "vx_m_s": v[:, 0], "vy_m_s": v[:, 1]})
+        "dh_dx_m_per_m": g[:, 0], "dh_dy_m_per_m": g[:, 1], "vx_m_s": v[:, 0], "vy_m_s": v[:, 1]}, units))
     ctype = "triangle" if m.order == 1 else "triangle6"
     pts3 = np.column_stack([m.points, np.zeros(m.n_nodes)])
     mesh = meshio.Mesh(

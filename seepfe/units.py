@@ -28,7 +28,7 @@ from typing import Any, Optional
 from .errors import SectionError
 
 __all__ = ["Dim", "Units", "FACTORS", "PRESETS", "DIMENSIONS", "parse_units", "to_si", "dimension_of",
-           "SI", "US", "K_RANGE", "unit_dimension", "conductivity_hints", "json_schema", "describe", "column_suffix"]
+           "SI", "US", "K_RANGE", "unit_dimension", "conductivity_hints", "json_schema", "describe", "column_suffix", "display_columns", "display_text"]
 
 _FT = Fraction(3048, 10000)                                  # m, exact (international foot)
 _LBF = Fraction(45359237, 10 ** 8) * Fraction(980665, 10 ** 5)  # N, exact (pound-force)
@@ -94,6 +94,8 @@ class Units:
             return FACTORS["length"][self.length] ** 2
         if dim == "flow":           # per length of section: length x velocity
             return FACTORS["length"][self.length] * FACTORS["conductivity"][self.conductivity]
+        if dim == "discharge":      # volume per time: length^2 x velocity
+            return FACTORS["length"][self.length] ** 2 * FACTORS["conductivity"][self.conductivity]
         if dim in FACTORS:
             return FACTORS[dim][getattr(self, dim)]
         return 1.0                  # dimensionless, angle
@@ -108,10 +110,11 @@ class Units:
             return f"1/{self.length}"
         if dim == "area":
             return f"{self.length}2"
-        if dim == "flow":
+        if dim in ("flow", "discharge"):
             num, _, per = self.conductivity.partition("/")
-            return f"{self.length}3/{per} per {self.length}" if num == self.length else \
-                f"{self.length}*{self.conductivity}"
+            if num == self.length:
+                return f"{self.length}3/{per}" + (f" per {self.length}" if dim == "flow" else "")
+            return f"{self.length}*{self.conductivity}" if dim == "flow" else f"{self.length}2*{self.conductivity}"
         if dim in FACTORS:
             return getattr(self, dim)
         return "deg" if dim == "angle" else "-"
@@ -205,6 +208,47 @@ def describe(dim: str) -> str:
         return ""
     word = {"flux": "conductivity unit", "per_length": "per length unit"}.get(dim, f"{dim.replace('_', ' ')} unit")
     return f" [the file's {word}: {choices[0]} by default; {', '.join(choices[1:])} by \"units\"]"
+
+
+#: SI column-name endings and their dimensions (gradients 'm_per_m' have none), longest first
+_COLUMN_DIMS = [("_m_per_m", None), ("_m3_s_per_m", "flow"), ("_kN_m3", "unit_weight"), ("_m_s", "velocity"),
+                ("_kPa", "pressure"), ("_m", "length")]
+
+
+def display_columns(columns: dict, units: "Units") -> dict:
+    """The SI columns (names carry units: 'x_m', 'pore_pressure_kPa', 'vx_m_s') followed, where ``units``
+    differ from SI, by the same values in those units ('x_ft', 'pore_pressure_psf', 'vx_ft_day')."""
+    out = dict(columns)
+    if units is None or units == SI:
+        return out
+    for name, v in columns.items():
+        for end, dim in _COLUMN_DIMS:
+            if name.endswith(end):
+                if dim is not None and units.factor(dim) != 1.0:
+                    new = name[: -len(end)] + "_" + column_suffix(units.label(dim))
+                    if new not in out:
+                        import numpy as np
+                        out[new] = np.asarray(v, float) / units.factor(dim)
+                break
+    return out
+
+
+_LEN_TEXT = re.compile(r"(?<![\w.])([+-]?\d+(?:\.(\d+))?) m(?![\w/³3])")
+
+
+def display_text(text: str, units: "Units") -> str:
+    """A message written in m with its lengths ('x = 274.32 m', '+256.2 m from the toe') in the display
+    length unit, to the same number of decimals. Other units in the text are left as they are."""
+    if units is None or units.length == "m":
+        return text
+    f = units.factor("length")
+
+    def sub(m):
+        dec = max(len(m.group(2) or ""), 1)
+        v = float(m.group(1)) / f
+        sign = "+" if m.group(1).startswith("+") and v >= 0 else ""
+        return f"{sign}{v:.{dec}f} {units.length}"
+    return _LEN_TEXT.sub(sub, text)
 
 
 def column_suffix(unit: str) -> str:

@@ -246,3 +246,35 @@ def test_sweep_in_its_own_units_is_converted_to_the_section_units():
     spec, label = load_sweep({"vary": {"boundaries.river.head": {"values": [10.0], "unit": "cm/s"}}})
     with pytest.raises(seepfe.SectionError, match="'cm/s' is a unit of conductivity, but 'boundaries.river.head' is a length"):
         expand_cases(spec, BLANKET, label)
+
+
+# ------------------------------------------------------------------ display units
+def test_results_are_shown_in_the_file_units_and_kept_si_in_summary(tmp_path):
+    from seepfe.analysis import analyse
+    from seepfe.output import write_analysis
+    sec = seepfe.load_section(ROOT / "sections" / "levee_us.json")
+    a = analyse(seepfe.solve(sec, order=1, size=12.0))
+    text = a.text()
+    q = a.result.flows["river"]
+    # 1 m3/s per m = 86400 / 0.3048**2 ft3/day per ft (exact factors)
+    assert f"{q * 86400 / FT ** 2:+.4e}" in text and "flow (ft3/day per ft)" in text
+    assert "at x (ft)" in text and "m3/s" not in text
+    assert f"{q:+.4e}" in a.text(U.SI)
+    d = a.to_dict()
+    assert d["units"]["length"] == "m" and d["display_units"] == U.PRESETS["US"]
+    names = write_analysis(a, tmp_path)
+    nodes = np.genfromtxt(tmp_path / "nodes.csv", delimiter=",", names=True)
+    assert np.allclose(nodes["y_ft"] * FT, nodes["y_m"])
+    assert np.allclose(nodes["pore_pressure_psf"] * U.FACTORS["pressure"]["psf"], nodes["pore_pressure_kPa"])
+    el = np.genfromtxt(tmp_path / "elements.csv", delimiter=",", names=True)
+    assert np.allclose(el["vx_ft_day"] * FT / 86400, el["vx_m_s"])
+    assert "dh_dx_ft" not in el.dtype.names               # gradients have no unit
+    ck = next(n for n in names if n.startswith("checks_"))
+    c = np.genfromtxt(tmp_path / ck, delimiter=",", names=True)
+    assert np.allclose(c["distance_from_toe_ft"] * FT, c["distance_from_toe_m"], equal_nan=True)
+
+
+def test_display_text_converts_lengths_only():
+    t = "x = 274.32 m (+256.2 m from the toe); gradient 0.5 m/m; q 1e-5 m3/s per m"
+    assert U.display_text(t, U.US) == "x = 900.00 ft (+840.6 ft from the toe); gradient 0.5 m/m; q 1e-5 m3/s per m"
+    assert U.display_text(t, U.SI) == t

@@ -177,7 +177,7 @@ def fmt_sci(v: float, digits: int = 1) -> str:
     if round(m, digits) >= 10:
         m, e = m / 10, e + 1
     if e in (-1, 0, 1, 2):
-        return f"{v:.{max(digits + 1 - e, 0)}g}" if e >= 0 else f"{v:.{digits + 1}g}"
+        return f"{v:.{max(digits + 1, e + 1)}g}" if e >= 0 else f"{v:.{digits + 1}g}"
     return rf"${m:.{digits}f}\times10^{{{e}}}$"
 
 
