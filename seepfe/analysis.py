@@ -78,6 +78,8 @@ def analyse(result, boundaries: list[str] | None = None) -> "Analysis":
             near = difflib.get_close_matches(n, sec.boundary_names, n=1)
             hint = f" (did you mean '{near[0]}'?)" if near else f" (known: {', '.join(sec.boundary_names)})"
             raise SectionError(f"{sec.source}: checks.boundaries: no boundary named '{one_line(n)}'{hint}")
+    import logging
+    logging.getLogger("seepfe").info("checks along %s", ", ".join(repr(n) for n in names) or "no exit surface")
     exits = {n: exit_gradients(result, n) for n in names}
     hand, cutoffs = hand_methods(result, exits)
     return Analysis(result=result, boundaries=names, rule=rule, exits=exits, hand=hand, cutoffs=cutoffs)

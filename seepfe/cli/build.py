@@ -18,10 +18,11 @@ written is ordinary JSON to read and edit; it is checked before it is written.""
 
 
 def register(sub) -> None:
+    from .common import EXIT_CODES
     b = sub.add_parser("build", help="write a section file from a ground line and borings, or from a DXF drawing",
                        description="Write an ordinary, editable section file from the engineer's own data: a "
                                    "ground survey, boring logs and water levels, or a DXF drawing.",
-                       epilog=EXAMPLE, formatter_class=argparse.RawDescriptionHelpFormatter)
+                       epilog=EXAMPLE + "\n\n" + EXIT_CODES, formatter_class=argparse.RawDescriptionHelpFormatter)
     b.add_argument("profile", help="build file (JSON), or with --dxf a section file")
     b.add_argument("--out", required=True, help="section file to write (JSON; '-' prints it), or with --dxf the "
                                                 "drawing (DXF)")
