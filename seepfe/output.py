@@ -34,6 +34,7 @@ def atomic_dir(out: str | os.PathLike):
     out.parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", dir=out.parent))
     try:
+        tmp.chmod(0o777 & ~_umask())     # mkdtemp makes it 0700; an output folder follows the user's umask
         (tmp / ".seepfe").write_text("written by seepfe\n")
         yield tmp
         if out.exists():
@@ -46,6 +47,12 @@ def atomic_dir(out: str | os.PathLike):
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
+
+
+def _umask() -> int:
+    m = os.umask(0o022)
+    os.umask(m)
+    return m
 
 
 def write_csv(path: Path, columns: dict[str, np.ndarray], fmt: str = "%.10g") -> None:

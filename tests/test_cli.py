@@ -126,3 +126,14 @@ def test_size_is_in_the_file_length_unit(capsys):
     with pytest.raises(SystemExit) as e:              # argparse's own usage error: exit code 2
         main(["check", str(us), "--size", "-1"])
     assert e.value.code == 2 and "must be a finite number > 0" in capsys.readouterr().err
+
+
+def test_output_folders_follow_the_umask(tmp_path, capsys):
+    import os
+    old = os.umask(0o022)
+    try:
+        assert main(["solve", str(DEMO), "--out", str(tmp_path / "o"), "--order", "1", "--size", "10"]) == 0
+    finally:
+        os.umask(old)
+    assert (tmp_path / "o").stat().st_mode & 0o777 == 0o755
+    assert (tmp_path / "o" / "input").stat().st_mode & 0o777 == 0o755
