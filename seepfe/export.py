@@ -83,15 +83,21 @@ _VALUE = {"phreatic_line": ("pressure_head_m", "length"),
           "equipotentials": ("total_head_m", "length")}
 
 
+def _write_csv(path: Path, columns: dict) -> None:
+    """Named columns (names carry units) as CSV (output.py calls this module, so it writes its own)."""
+    names = list(columns)
+    data = np.column_stack([np.asarray(columns[n], float) for n in names]) if names else np.empty((0, 0))
+    np.savetxt(path, data.reshape(-1, len(names)), delimiter=",", header=",".join(names), comments="", fmt="%.10g")
+
+
 def _csv(path: Path, items: list, value_col: str, dim: str, units) -> None:
-    from .output import write_csv
     from .units import SI, display_columns
     rows = [(i, it["value"], it["points"]) for i, it in enumerate(items)]
     pts = np.vstack([p for _, _, p in rows]) if rows else np.empty((0, 2))
     line = np.concatenate([np.full(len(p), i) for i, _, p in rows]) if rows else np.empty(0)
     val = np.concatenate([np.full(len(p), v) for _, v, p in rows]) if rows else np.empty(0)
     cols = {"line": line, value_col: val, "x_m": pts[:, 0], "y_m": pts[:, 1]}
-    write_csv(path, display_columns(cols, units if units is not None else SI))
+    _write_csv(path, display_columns(cols, units if units is not None else SI))
 
 
 def write_lines(analysis, folder, units=None) -> list[str]:
