@@ -278,3 +278,15 @@ def test_display_text_converts_lengths_only():
     t = "x = 274.32 m (+256.2 m from the toe); gradient 0.5 m/m; q 1e-5 m3/s per m"
     assert U.display_text(t, U.US) == "x = 900.00 ft (+840.6 ft from the toe); gradient 0.5 m/m; q 1e-5 m3/s per m"
     assert U.display_text(t, U.SI) == t
+
+
+def test_sweep_table_gets_the_file_units_beside_si():
+    from seepfe.sweep.api import _with_display_columns
+    cols = ["case", "boundaries.river.head_ft", "flow_river_m3_s_per_m", "head_toe_m", "fs", "exit_gradient_max"]
+    rows = [{"case": 0, "boundaries.river.head_ft": 398.0, "flow_river_m3_s_per_m": 1e-5, "head_toe_m": 118.0,
+             "fs": 1.2, "exit_gradient_max": 0.4}]
+    c2, r2 = _with_display_columns(cols, rows, U.US)
+    assert c2[:len(cols)] == cols and set(c2[len(cols):]) == {"flow_river_ft3_day_per_ft", "head_toe_ft"}
+    assert r2[0]["head_toe_ft"] == pytest.approx(118.0 / FT)
+    assert r2[0]["flow_river_ft3_day_per_ft"] == pytest.approx(1e-5 * 86400 / FT ** 2)
+    assert _with_display_columns(cols, rows, U.SI) == (cols, rows)

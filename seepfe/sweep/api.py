@@ -286,6 +286,21 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
     return rep
 
 
+def _with_display_columns(columns: list, rows: list, units) -> tuple[list, list]:
+    """The table's SI result columns again in the section file's units, appended (the rows are copied)."""
+    from ..units import display_columns
+    if units.is_si or not rows:
+        return columns, rows
+    numeric = {c: np.array([r.get(c) for r in rows], float) for c in columns
+               if c not in ("case",) and all(isinstance(r.get(c), (int, float)) and not isinstance(r.get(c), bool)
+                                             for r in rows)}
+    extra = {k: v for k, v in display_columns(numeric, units).items() if k not in numeric}
+    if not extra:
+        return columns, rows
+    out = [{**r, **{k: float(v[i]) for k, v in extra.items()}} for i, r in enumerate(rows)]
+    return columns + list(extra), out
+
+
 def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts, points, columns, profiles,
            plots: bool, sweep_src=None) -> None:
     from ..about import __version__
@@ -295,7 +310,8 @@ def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts
     files: list[str] = []
     with atomic_dir(out / "results") as tmp:
         if rep.table:
-            report.write_table(tmp / "table.csv", rep.columns, rep.table)
+            cols, rows = _with_display_columns(rep.columns, rep.table, sec.units)
+            report.write_table(tmp / "table.csv", cols, rows)
             files.append("table.csv")
             if plots:
                 results = [c for c in rep.columns if c.startswith(("flow_", "head_"))]
