@@ -30,10 +30,14 @@ PINT_NAMES = {"m": "m", "ft": "ft", "m/s": "m/s", "cm/s": "cm/s", "m/day": "m/da
 SI_PINT = {"length": "m", "conductivity": "m/s", "unit_weight": "kN/m**3", "pressure": "kPa"}
 
 
-@pytest.mark.parametrize("dim,unit", [(d, u) for d, t in U.FACTORS.items() for u in t])
-def test_factors_agree_with_pint(dim, unit):
+@pytest.fixture(scope="module")
+def ureg():
     pint = pytest.importorskip("pint")
-    ureg = pint.UnitRegistry()
+    return pint.UnitRegistry()
+
+
+@pytest.mark.parametrize("dim,unit", [(d, u) for d, t in U.FACTORS.items() for u in t])
+def test_factors_agree_with_pint(dim, unit, ureg):
     want = ureg.Quantity(1.0, PINT_NAMES[unit]).to(SI_PINT[dim]).magnitude
     assert U.FACTORS[dim][unit] == pytest.approx(want, rel=1e-14)
 
