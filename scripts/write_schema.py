@@ -1,7 +1,8 @@
 """Write the JSON Schemas in docs/ from the code: section.schema.json (the section-file format, from
-seepfe.schema) and summary.schema.json (summary.json, from seepfe.records).
+seepfe.schema, seepfe.remedies and seepfe.units), sweep.schema.json (sweep files, from seepfe.sweep.spec)
+and summary.schema.json (summary.json, from seepfe.records).
 
-Run after changing seepfe/schema.py or seepfe/records.py:  python scripts/write_schema.py
+Run after changing those models:  python scripts/write_schema.py
 (tests/test_schema_file.py fails while a committed file is out of date; ``--check`` does the same
 from the command line and exits 1.)
 """
@@ -16,6 +17,10 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parent.parent
 TARGET = ROOT / "docs" / "section.schema.json"
 SUMMARY = ROOT / "docs" / "summary.schema.json"
+SWEEP_TARGET = ROOT / "docs" / "sweep.schema.json"
+_SCHEMA_KEY = {"title": "$schema", "type": "string",
+               "description": "address of this JSON Schema, for editors that check the file as you type; "
+                              "ignored by seepfe"}
 
 
 def summary_schema_text() -> str:
@@ -52,15 +57,74 @@ def schema_text() -> str:
         "additionalProperties": {"anyOf": [{"type": "number"}, {"$ref": "#/$defs/Expression"}]}}
     s["$defs"]["Expression"] = {"type": "string", "pattern": "^=",
                                 "description": "an expression of declared parameters, e.g. '=stage + 0.5'"}
+    from seepfe.units import json_schema as units_schema
+    s["properties"]["units"] = units_schema()
+    s["properties"]["$schema"] = dict(_SCHEMA_KEY)
+    s = _describe_dimensions(s)
     s = _numbers_take_expressions(s)
     s = {"$schema": "https://json-schema.org/draft/2020-12/schema",
          "$id": "https://seepfe.invalid/section.schema.json",
          "description": "Section file of seepfe (steady seepage through and under levee and dam sections). "
                         "Lengths m, y is elevation (up); conductivities m/s; unit weights kN/m3; "
-                        "fluxes m/s positive into the section; angles degrees counter-clockwise from +x. "
+                        "fluxes m/s positive into the section; angles degrees counter-clockwise from +x; "
+                        "or the units named by 'units' (each number's dimension is its 'x-dimension'). "
                         "See docs/format.md.",
          **{k: v for k, v in s.items() if k != "description"}}
     return json.dumps(s, indent=2, sort_keys=True, ensure_ascii=False) + "\n"
+
+
+def sweep_schema_text() -> str:
+    """The sweep-file schema as the exact text to commit."""
+    sys.path.insert(0, str(ROOT))
+    from seepfe.sweep.spec import SweepSpec
+    from seepfe.units import json_schema as units_schema
+
+    s = SweepSpec.model_json_schema(mode="validation", by_alias=True)
+    s["properties"]["units"] = units_schema()
+    s["properties"]["units"]["description"] = (
+        "units of the sweep's numbers (default: the section file's units): values of keys, points, "
+        "element size, search ranges and medians; converted to the section file's units before they "
+        "are applied")
+    s["properties"]["$schema"] = dict(_SCHEMA_KEY)
+    s = _describe_dimensions(s)
+    s = {"$schema": "https://json-schema.org/draft/2020-12/schema",
+         "$id": "https://seepfe.invalid/sweep.schema.json",
+         "description": "Sweep file of seepfe: cases, target searches and fragility of one section "
+                        "(docs/sweeps.md). Numbers are in the sweep's 'units', by default the section file's.",
+         **{k: v for k, v in s.items() if k != "description"}}
+    return json.dumps(s, indent=2, sort_keys=True, ensure_ascii=False) + "\n"
+
+
+def _dims(node) -> set:
+    """x-dimension values inside a property schema (not through $ref)."""
+    if isinstance(node, dict):
+        out = {node["x-dimension"]} if "x-dimension" in node else set()
+        for k, v in node.items():
+            if k != "x-dimension":
+                out |= _dims(v)
+        return out
+    if isinstance(node, list):
+        return set().union(*(_dims(v) for v in node)) if node else set()
+    return set()
+
+
+def _describe_dimensions(node):
+    """Append the unit choices to the description of every property with one dimension."""
+    from seepfe.units import describe
+    if isinstance(node, dict):
+        out = {k: _describe_dimensions(v) for k, v in node.items()}
+        props = out.get("properties")
+        if isinstance(props, dict):
+            for name, p in props.items():
+                d = _dims(p)
+                if len(d) == 1 and isinstance(p, dict):
+                    extra = describe(next(iter(d)))
+                    if extra:
+                        p["description"] = (p.get("description") or name) + extra
+        return out
+    if isinstance(node, list):
+        return [_describe_dimensions(v) for v in node]
+    return node
 
 
 def _numbers_take_expressions(node, in_any_of=False):
@@ -85,7 +149,8 @@ def main(argv=None) -> int:
     ap.add_argument("--check", action="store_true", help="exit 1 if the committed file is out of date")
     args = ap.parse_args(argv)
     bad = 0
-    for target, text in ((TARGET, schema_text()), (SUMMARY, summary_schema_text())):
+    for target, text in ((TARGET, schema_text()), (SWEEP_TARGET, sweep_schema_text()),
+                         (SUMMARY, summary_schema_text())):
         if args.check:
             ok = target.exists() and target.read_text(encoding="utf-8") == text
             print(f"{target.relative_to(ROOT)}: {'up to date' if ok else 'OUT OF DATE: run python scripts/write_schema.py'}")

@@ -41,6 +41,7 @@ from .checks.hand import hand_methods
 from .checks.methods import QUANTITIES, HandMethod
 from .errors import SectionError
 from .records import SUMMARY_FORMAT, UNITS
+from .units import SI
 from .text import one_line, table
 
 __all__ = ["analyse", "Analysis", "CAUTION"]
@@ -77,6 +78,8 @@ def analyse(result, boundaries: list[str] | None = None) -> "Analysis":
             near = difflib.get_close_matches(n, sec.boundary_names, n=1)
             hint = f" (did you mean '{near[0]}'?)" if near else f" (known: {', '.join(sec.boundary_names)})"
             raise SectionError(f"{sec.source}: checks.boundaries: no boundary named '{one_line(n)}'{hint}")
+    import logging
+    logging.getLogger("seepfe").info("checks along %s", ", ".join(repr(n) for n in names) or "no exit surface")
     exits = {n: exit_gradients(result, n) for n in names}
     hand, cutoffs = hand_methods(result, exits)
     return Analysis(result=result, boundaries=names, rule=rule, exits=exits, hand=hand, cutoffs=cutoffs)
@@ -163,6 +166,7 @@ class Analysis:
             "source": sec.source,
             "input_sha256": sec.input_hash,
             "units": dict(UNITS),
+            "display_units": sec.units.as_dict(),
             "flows_m3_s_per_m": r.flows,
             "balance": r.balance,
             "head_range_m": [float(r.h.min()), float(r.h.max())],
@@ -200,31 +204,35 @@ class Analysis:
                 "warnings": list(warnings or []), "nodes": int(r.mesh.n_nodes),
                 "balance_relative_error": _json_float(r.balance["relative_error"]), "time_s": float(time_s)}
 
-    def text(self) -> str:
+    def text(self, units=None) -> str:
         """What the command line prints: flows, seepage faces, remedies, the checks, the verdict and the
-        hand methods beside the FE, and the caution."""
+        hand methods beside the FE, and the caution; in ``units`` (seepfe.units.Units, default: the
+        section file's units)."""
+        from .units import display_text
         r = self.result
         sec = r.section
+        u = units if units is not None else sec.units
+        fq, FL, Lf, LU = u.factor("flow"), u.label("flow"), u.factor("length"), u.length
         d = self.to_dict()
         kinds = {b.name: b.kind.replace("_", " ") for b in sec.spec.boundaries}
-        L = [table(f"{sec.title or sec.source}: flows (m3/s per m, + into the section)",
-                   ["boundary", "kind", "flow (m3/s per m)"],
-                   [[n, kinds.get(n, "drain zone"), f"{q:+.4e}"] for n, q in r.flows.items()])]
+        L = [table(f"{sec.title or sec.source}: flows ({FL}, + into the section)",
+                   ["boundary", "kind", f"flow ({FL})"],
+                   [[n, kinds.get(n, "drain zone"), f"{q / fq:+.4e}"] for n, q in r.flows.items()])]
         bal = d["balance"]
-        L.append(f"balance: in {bal['inflow_m3_s_per_m']:.4e}, out {bal['outflow_m3_s_per_m']:.4e} m3/s per m, "
+        L.append(f"balance: in {bal['inflow_m3_s_per_m'] / fq:.4e}, out {bal['outflow_m3_s_per_m'] / fq:.4e} {FL}, "
                  f"relative error {bal['relative_error']:.1e}")
         st, sv = d["mesh"], d["solver"]
         L.append(f"mesh: {st['elements']} P{st['order']} triangles, {st['nodes']} nodes; solver: "
                  f"{sv.get('backend', '?')}, {sv.get('unknowns', '?')} unknowns, "
                  f"{sv.get('seepage_face_passes', '?')} pass(es)")
         faces = self.phreatic.get("seepage_faces", {})
-        wet = [[n, f"({f['exit_point_m'][0]:.2f}, {f['exit_point_m'][1]:.2f})", f"{f['length_m']:.2f}",
-                f"{-f['outflow_m3_s_per_m']:+.4e}"] for n, f in faces.items() if f.get("exit_point_m")]
+        wet = [[n, f"({f['exit_point_m'][0] / Lf:.2f}, {f['exit_point_m'][1] / Lf:.2f})", f"{f['length_m'] / Lf:.2f}",
+                f"{-f['outflow_m3_s_per_m'] / fq:+.4e}"] for n, f in faces.items() if f.get("exit_point_m")]
         if wet:
             L.append(table("seepage faces (where the phreatic surface meets the outline)",
-                           ["boundary", "exit point x, y (m)", "wet length (m)", "flow (m3/s per m)"], wet))
+                           ["boundary", f"exit point x, y ({LU})", f"wet length ({LU})", f"flow ({FL})"], wet))
         for rd in self.remedies:
-            what = ", ".join(f"{k} {v:.4g}" for k, v in rd.items()
+            what = ", ".join(_shown(k, v, u) for k, v in rd.items()
                              if isinstance(v, float) and k.endswith(("_m", "_m3_s", "_m3_s_per_m")))
             L.append(f"remedy '{one_line(rd.get('name', rd['type']))}' ({rd['type']}): {what}")
             if rd.get("limits"):
@@ -234,19 +242,21 @@ class Analysis:
                      "be used (see solver in summary.json)")
         if self.exits:
             rows = []
+            ln = lambda v, fmt: _f(None if v is None else v / Lf, fmt)      # noqa: E731
             for n, ex in self.exits.items():
                 g = ex.governing
-                rows.append([n, _f(g["fs"], ".2f"), g["mode"] or "-", _f(g["x_m"], ".2f"),
-                             _f(g["top_stratum_thickness_m"], ".2f"),
-                             f"{_f(g['exit_gradient_max'], '.3f')} at x {_f(g['exit_gradient_x_m'], '.2f')}"
+                rows.append([n, _f(g["fs"], ".2f"), g["mode"] or "-", ln(g["x_m"], ".2f"),
+                             ln(g["top_stratum_thickness_m"], ".2f"),
+                             f"{_f(g['exit_gradient_max'], '.3f')} at x {ln(g['exit_gradient_x_m'], '.2f')}"
                              if g["exit_gradient_max"] is not None else "-",
                              _f(g["surface_gradient_max"], ".3f"),
-                             _f(g["fails_within_m_of_toe"], ".1f"), g["verdict"].upper()])
-            L.append(table("underseepage checks (least FS -, gradients m/m, x, thickness and distances m)",
-                           ["boundary", "least FS", "mode", "at x (m)", "top stratum (m)", "largest exit gradient",
-                            "largest surface gradient", "fails within (m of toe)", "verdict"], rows))
+                             ln(g["fails_within_m_of_toe"], ".1f"), g["verdict"].upper()])
+            L.append(table(f"underseepage checks (least FS -, gradients m/m, x, thickness and distances {LU})",
+                           ["boundary", "least FS", "mode", f"at x ({LU})", f"top stratum ({LU})",
+                            "largest exit gradient", "largest surface gradient", f"fails within ({LU} of toe)",
+                            "verdict"], rows))
         g = self.governing
-        L.append(f"verdict: {g['verdict'].upper()}: {g['why']}")
+        L.append(f"verdict: {g['verdict'].upper()}: {display_text(g['why'], u)}")
         rows, na = [], []
         for m in self.hand:
             if not m.applies:
@@ -254,13 +264,21 @@ class Analysis:
                 continue
             for q, unit, label in QUANTITIES[m.method]:
                 hand, fe = m.values.get(q, (None, None))
+                dim = {"m": "length", "m3/s per m": "flow"}.get(unit)
+                if dim is not None:
+                    f = u.factor(dim)
+                    hand, fe, unit = (None if hand is None else hand / f), (None if fe is None else fe / f), u.label(dim)
                 rows.append([f"{m.title}: {label}", _f(hand, ".4g"), _f(fe, ".4g"), unit])
         if rows:
             L.append(table("hand methods beside the FE", ["method: quantity", "hand", "FE", "unit"], rows))
         L += na
+        for w in sec.warnings:
+            L.append(f"warning: {w}")
         for note in self.notes + [n for ex in self.exits.values() for n in ex.notes] + \
                 [n for m in self.hand for n in m.notes]:
-            L.append(f"note: {note}")
+            L.append(f"note: {display_text(note, u)}")
+        if u != SI:
+            L.append(f"units: {u.name} (summary.json and the *_m columns of the CSV files are SI)")
         L.append(f"CAUTION: {CAUTION}")
         return "\n".join(L)
 
@@ -308,6 +326,16 @@ def _governing(exits: dict, result) -> dict:
         out["verdict"] = "pass"
         out["why"] = per[out["boundary"]]["why"] if out["boundary"] else " | ".join(g["why"] for g in per.values())
     return out
+
+
+def _shown(key: str, v: float, u) -> str:
+    """'length_m 40' in SI; 'length 131.2 ft' in other units."""
+    for end, dim in (("_m3_s_per_m", "flow"), ("_m3_s", "discharge"), ("_m", "length")):
+        if key.endswith(end):
+            if u.factor(dim) == 1.0:
+                return f"{key} {v:.4g}"
+            return f"{key[: -len(end)]} {v / u.factor(dim):.4g} {u.label(dim)}"
+    return f"{key} {v:.4g}"
 
 
 def _f(v, fmt: str) -> str:

@@ -286,9 +286,32 @@ def _check_pieces(section: Section, pts, tri, bedges, btag, left, ltag):
                            f"{fmt_xy(where)}) from every head boundary; its heads would have no unique solution")
 
 
+#: Debian/Ubuntu packages of the system libraries the gmsh wheel links (scripts/install.sh installs the same)
+GMSH_SYSTEM_PACKAGES = ("libglu1-mesa libgl1 libxrender1 libxcursor1 libxfixes3 libxext6 libxft2 libfontconfig1 "
+                        "libxinerama1 libx11-6 libgomp1")
+
+
+def load_gmsh():
+    """Import gmsh; a missing system library it links becomes one line naming the packages to install."""
+    try:
+        import gmsh
+    except OSError as e:           # ctypes could not load libgmsh or a library it links
+        import re
+        lib = re.search(r"(lib[\w.+-]+\.so[\w.]*)", str(e))
+        what = f"the system library {lib.group(1)}" if lib else f"its shared library ({e})"
+        raise MeshError(f"gmsh cannot load {what}; install the system packages it needs: apt-get install "
+                        f"{GMSH_SYSTEM_PACKAGES} (Debian/Ubuntu names; the same libraries elsewhere), or run "
+                        "scripts/install.sh") from None
+    except ImportError as e:
+        if getattr(e, "name", None) == "gmsh" or "gmsh" in str(e):
+            raise MeshError("gmsh is not installed: pip install gmsh (or run scripts/install.sh)") from None
+        raise
+    return gmsh
+
+
 def _gmsh_mesh(section: Section, size: float, scale: float):
     """Coarse P1 mesh from gmsh at sizes multiplied by scale. Returns points, tri, zone, bedges, btag."""
-    import gmsh
+    gmsh = load_gmsh()
 
     g = section.graph
     spec = section.spec.mesh

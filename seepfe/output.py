@@ -34,6 +34,7 @@ def atomic_dir(out: str | os.PathLike):
     out.parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", dir=out.parent))
     try:
+        tmp.chmod(0o777 & ~_umask())     # mkdtemp makes it 0700; an output folder follows the user's umask
         (tmp / ".seepfe").write_text("written by seepfe\n")
         yield tmp
         if out.exists():
@@ -46,6 +47,12 @@ def atomic_dir(out: str | os.PathLike):
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
+
+
+def _umask() -> int:
+    m = os.umask(0o022)
+    os.umask(m)
+    return m
 
 
 def write_csv(path: Path, columns: dict[str, np.ndarray], fmt: str = "%.10g") -> None:
@@ -81,8 +88,11 @@ def write_analysis(analysis, folder: Path) -> list[str]:
     names = ["summary.json", "nodes.csv", "elements.csv", "result.vtu"]
     for name, ex in analysis.exits.items():
         f = f"checks_{safe_name(name)}.csv"
-        ex.to_csv(folder / f)
+        ex.to_csv(folder / f, units=analysis.result.section.units)
         names.append(f)
+    from .export import copy_inputs, write_lines
+    names += write_lines(analysis, folder)
+    names += copy_inputs(folder, analysis.result.section)
     return names
 
 
@@ -94,15 +104,17 @@ def write_result(result, folder: Path, summary: dict | None = None) -> None:
     m = result.mesh
     if summary is not None:
         write_json(folder / "summary.json", summary)
-    write_csv(folder / "nodes.csv", {
+    from .units import display_columns
+    units = result.section.units          # SI columns, then the same in the file's units where they differ
+    write_csv(folder / "nodes.csv", display_columns({
         "node": np.arange(m.n_nodes), "x_m": m.points[:, 0], "y_m": m.points[:, 1],
         "total_head_m": result.h, "pressure_head_m": result.pressure_head,
-        "pore_pressure_kPa": result.pore_pressure})
+        "pore_pressure_kPa": result.pore_pressure}, units))
     g, v = result.element_gradient, result.velocity
     c = m.points[m.triangles].mean(axis=1)
-    write_csv(folder / "elements.csv", {
+    write_csv(folder / "elements.csv", display_columns({
         "element": np.arange(m.n_elements), "zone": m.zone, "xc_m": c[:, 0], "yc_m": c[:, 1],
-        "dh_dx_m_per_m": g[:, 0], "dh_dy_m_per_m": g[:, 1], "vx_m_s": v[:, 0], "vy_m_s": v[:, 1]})
+        "dh_dx_m_per_m": g[:, 0], "dh_dy_m_per_m": g[:, 1], "vx_m_s": v[:, 0], "vy_m_s": v[:, 1]}, units))
     ctype = "triangle" if m.order == 1 else "triangle6"
     pts3 = np.column_stack([m.points, np.zeros(m.n_nodes)])
     mesh = meshio.Mesh(

@@ -155,6 +155,9 @@ class Summary(BaseModel):
     source: str
     input_sha256: str
     units: Units
+    display_units: Optional[dict[str, str]] = Field(
+        None, description="the units printed tables, figures, the report and the extra CSV columns were shown in "
+                          "(the section file's 'units'); every number of this file is SI")
     flows_m3_s_per_m: dict[str, float] = Field(description="boundary or drain zone -> flow, + into the section")
     balance: dict[str, float]
     head_range_m: list[float]

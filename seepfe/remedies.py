@@ -42,7 +42,8 @@ from shapely.ops import linemerge, unary_union
 
 from .conductivity import conductivity_tensor
 from .errors import SectionError
-from .schema import Conductivity, Finite, Positive, SectionSpec
+from .schema import Conductivity, Length, PositiveLength, SectionSpec
+from .units import Dim
 
 __all__ = ["apply", "flows", "RELIEF_WELL_LIMITS", "CutoffWall", "LandsideBerm", "RiversideBlanket",
            "ToeDrain", "ReliefWells", "REMEDY_TYPES"]
@@ -64,6 +65,7 @@ def _nonneg(v: float) -> float:
 
 
 NonNeg = Annotated[float, AfterValidator(_nonneg)]
+NonNegLength = Annotated[NonNeg, Dim("length")]     # every number of a remedy is a length, or a k
 _CFG = ConfigDict(extra="forbid", strict=True, frozen=True)
 Side = Optional[Literal["left", "right"]]
 
@@ -78,19 +80,19 @@ class CutoffWall(_Remedy):
     """A vertical cutoff wall; thickness 0 is an impervious sheet pile (an internal no-flow line)."""
 
     type: Literal["cutoff_wall"]
-    x: Finite = Field(description="centre line of the wall, m")
-    top: Optional[Finite] = Field(None, description="top elevation, m (default: top of the section at x)")
-    bottom: Finite = Field(description="bottom (tip) elevation, m")
-    thickness: NonNeg = Field(description="m; 0 = impervious sheet pile")
+    x: Length = Field(description="centre line of the wall, m")
+    top: Optional[Length] = Field(None, description="top elevation, m (default: top of the section at x)")
+    bottom: Length = Field(description="bottom (tip) elevation, m")
+    thickness: NonNegLength = Field(description="m; 0 = impervious sheet pile")
     material: Optional[str] = Field(None, description="material of the wall (a key of 'materials')")
     k: Optional[Conductivity] = Field(None, description="isotropic conductivity of the wall, m/s (instead of material)")
-    mesh_size: Optional[Positive] = Field(None, description="element size along the wall, m "
-                                                            "(default: thickness / 2, at most the mesh size)")
+    mesh_size: Optional[PositiveLength] = Field(None, description="element size along the wall, m "
+                                                                  "(default: thickness / 2, at most the mesh size)")
 
 
 class _OnGround(_Remedy):
     embankment: Optional[str] = Field(None, description="zone whose toe is used (default: zone 'embankment')")
-    toe_x: Optional[Finite] = Field(None, description="x of the toe, m (instead of the embankment zone)")
+    toe_x: Optional[Length] = Field(None, description="x of the toe, m (instead of the embankment zone)")
     landside: Side = Field(None, description="direction of the landside (default: away from the boundary "
                                              "with the highest head)")
 
@@ -99,9 +101,9 @@ class LandsideBerm(_OnGround):
     """A landside seepage berm on the ground from the landside toe."""
 
     type: Literal["landside_berm"]
-    length: Positive = Field(description="horizontal length from the toe, m")
-    thickness_toe: Positive = Field(description="thickness at the toe, m")
-    thickness_end: NonNeg = Field(description="thickness at the landside end, m")
+    length: PositiveLength = Field(description="horizontal length from the toe, m")
+    thickness_toe: PositiveLength = Field(description="thickness at the toe, m")
+    thickness_end: NonNegLength = Field(description="thickness at the landside end, m")
     material: str
 
 
@@ -109,8 +111,8 @@ class RiversideBlanket(_OnGround):
     """An impervious (or less pervious) blanket on the riverside ground from the riverside toe."""
 
     type: Literal["riverside_blanket"]
-    length: Positive = Field(description="horizontal length from the riverside toe, m")
-    thickness: Positive = Field(description="m")
+    length: PositiveLength = Field(description="horizontal length from the riverside toe, m")
+    thickness: PositiveLength = Field(description="m")
     material: str
 
 
@@ -118,23 +120,23 @@ class ToeDrain(_OnGround):
     """A free-draining trench at the landside toe: its perimeter becomes a drain boundary."""
 
     type: Literal["toe_drain"]
-    x: Optional[Finite] = Field(None, description="riverside edge of the trench, m (default: the landside toe)")
-    width: Positive = Field(description="m, measured landward")
-    depth: Positive = Field(description="below the ground, m")
+    x: Optional[Length] = Field(None, description="riverside edge of the trench, m (default: the landside toe)")
+    width: PositiveLength = Field(description="m, measured landward")
+    depth: PositiveLength = Field(description="below the ground, m")
 
 
 class ReliefWells(_OnGround):
     """A line of relief wells, by its two-dimensional equivalent line sink."""
 
     type: Literal["relief_wells"]
-    x: Optional[Finite] = Field(None, description="x of the well line, m (default: the landside toe)")
-    spacing: Positive = Field(description="distance between wells along the levee, m")
-    radius: Positive = Field(description="effective well radius, m")
-    penetration: Positive = Field(description="screen length into the pervious stratum, m")
-    screen_top: Optional[Finite] = Field(None, description="elevation of the top of the screen, m "
+    x: Optional[Length] = Field(None, description="x of the well line, m (default: the landside toe)")
+    spacing: PositiveLength = Field(description="distance between wells along the levee, m")
+    radius: PositiveLength = Field(description="effective well radius, m")
+    penetration: PositiveLength = Field(description="screen length into the pervious stratum, m")
+    screen_top: Optional[Length] = Field(None, description="elevation of the top of the screen, m "
                                                             "(default: top of the most pervious zone at x)")
-    discharge_elevation: Finite = Field(description="elevation of the well outlet, m")
-    well_loss: NonNeg = Field(0.0, description="entrance, screen and riser losses at design flow, m of head")
+    discharge_elevation: Length = Field(description="elevation of the well outlet, m")
+    well_loss: NonNegLength = Field(0.0, description="entrance, screen and riser losses at design flow, m of head")
 
 
 Remedy = Annotated[Union[CutoffWall, LandsideBerm, RiversideBlanket, ToeDrain, ReliefWells],

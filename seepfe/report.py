@@ -120,6 +120,14 @@ def build_report(analysis, figures=None, *, show_mesh: bool = True, arrows: bool
     gv = analysis.governing
     bal = result.balance
     qs = 0.5 * (bal["inflow_m3_s_per_m"] + bal["outflow_m3_s_per_m"])
+    # shown in the section file's units (summary.json stays SI)
+    from .units import display_text
+    un = sec.units
+    fq, FL = un.factor("flow"), un.label("flow").replace("3", "³")
+    fL, LU = un.factor("length"), un.length
+    fK, KU = un.factor("conductivity"), un.conductivity
+    fW, WU = un.factor("unit_weight"), un.unit_weight.replace("3", "³")
+    ln = lambda v: None if v is None else v / fL          # noqa: E731
     generated = generated or _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
     if figures is None:
         figures = figure_set(result, show_mesh=show_mesh, arrows=arrows, analysis=analysis)
@@ -129,36 +137,41 @@ def build_report(analysis, figures=None, *, show_mesh: bool = True, arrows: bool
     P.append(f'<p class="meta">Steady seepage by finite elements · seepfe {_e(__version__)} · input '
              f"<code>{_e(sec.source)}</code> · SHA-256 <code>{_e(sec.input_hash)}</code> · {_e(generated)}</p>")
     P.append(f'<p class="caution"><b>Caution.</b> {_e(CAUTION)}</p>')
+    if not un.is_si:
+        P.append(f'<p class="note">Shown in the section file\'s units: {_e(un.name)} (lengths {_e(LU)}, '
+                 f"conductivities {_e(KU)}, flows {_e(FL)}, unit weights {_e(WU)}, pressures {_e(un.pressure)}); "
+                 "summary.json and the *_m columns of the CSV files are SI.</p>")
 
     # governing values
     P.append("<h2>Governing values</h2>")
-    cards = [(f"{_num(qs, '{:.3e}')} m³/s per m",
-              f"seepage through the section ({_num(qs * 86400.0, '{:.3g}')} m³/day per m)"),
-             (f"{_num(net.head_loss, '{:.3f}')} m", "total head loss H across the section")]
+    cards = [(f"{_num(qs / fq, '{:.3e}')} {FL}",
+              f"seepage through the section ({_num(qs * 86400.0, '{:.3g}')} m³/day per m)" if un.is_si
+              else "seepage through the section"),
+             (f"{_num(net.head_loss / fL, '{:.3f}')} {LU}", "total head loss H across the section")]
     if net.squares:
         cards.append((f"Nf / Nd = {net.n_channels:.2f} / {net.n_drops}",
-                      f"flow net: q = k H Nf/Nd = {_num(net.k_ref * net.head_loss * net.shape_factor, '{:.3e}')} m³/s per m "
-                      f"with k = {_num(net.k_ref, '{:.3g}')} m/s"))
+                      f"flow net: q = k H Nf/Nd = {_num(net.k_ref * net.head_loss * net.shape_factor / fq, '{:.3e}')} "
+                      f"{FL} with k = {_num(net.k_ref / fK, '{:.3g}')} {KU}"))
     else:
         cards.append((f"Nf = {net.n_channels:.0f}, Nd = {net.n_drops}",
                       "flow net: channels of equal flow (zones differ in k)"))
     cls = {"pass": "pass", "fail": "fail"}.get(gv["verdict"], "fail")
     verdict = f' <span class="{cls}">{_e(gv["verdict"])}</span>'
     if gv["fs"] is not None:
-        where = (f" at {gv['distance_from_toe_m']:.1f} m from the toe" if gv.get("distance_from_toe_m") is not None
-                 else f" at x = {gv['x_m']:.1f} m")
+        where = (f" at {gv['distance_from_toe_m'] / fL:.1f} {LU} from the toe"
+                 if gv.get("distance_from_toe_m") is not None else f" at x = {gv['x_m'] / fL:.1f} {LU}")
         cards.append((_Raw(f"{_num(gv['fs'], '{:.2f}')}{verdict}"),
                       f"least factor of safety ({gv['mode']}) along '{gv['boundary']}'{where}"))
     else:
-        cards.append((_Raw(f"–{verdict}"), "least factor of safety: " + gv["why"]))
+        cards.append((_Raw(f"–{verdict}"), "least factor of safety: " + display_text(gv["why"], un)))
     if gv["exit_gradient_max"] is not None:
         cards.append((f"{_num(gv['exit_gradient_max'], '{:.3f}')} m/m",
                       f"largest exit gradient along '{gv['exit_gradient_boundary']}' at x = "
-                      f"{gv['exit_gradient_x_m']:.1f} m"))
+                      f"{gv['exit_gradient_x_m'] / fL:.1f} {LU}"))
     cards.append((f"{bal['relative_error']:.1e}", "relative flow-balance error (in − out) / in"))
     P.append('<div class="gov" id="governing">' + "".join(
         f"<div><b>{v if isinstance(v, _Raw) else _e(v)}</b><span>{_e(t)}</span></div>" for v, t in cards) + "</div>")
-    P.append(f'<p id="verdict"><b>Verdict: <span class="{cls}">{_e(gv["verdict"])}</span>.</b> {_e(gv["why"])}</p>')
+    P.append(f'<p id="verdict"><b>Verdict: <span class="{cls}">{_e(gv["verdict"])}</span>.</b> {_e(display_text(gv["why"], un))}</p>')
     if not profiles:
         P.append('<p class="note">No exit-gradient checks in this result (no seepage face to check, or the '
                  "checks are not available in this version).</p>")
@@ -169,13 +182,13 @@ def build_report(analysis, figures=None, *, show_mesh: bool = True, arrows: bool
     for n, mt in spec.materials.items():
         kx = mt.k if mt.k is not None else mt.kx
         ky = mt.k if mt.k is not None else mt.ky
-        rows.append([n, mt.description or "", _num(kx, "{:.3g}"), _num(ky, "{:.3g}"), _num(mt.angle, "{:g}"),
-                     _num(mt.unit_weight, "{:g}")])
-    P.append(_table(["material", "description", "kx (m/s)", "ky (m/s)", "angle of kx (°)", "unit weight (kN/m³)"],
+        rows.append([n, mt.description or "", _num(kx / fK, "{:.3g}"), _num(ky / fK, "{:.3g}"), _num(mt.angle, "{:g}"),
+                     _num(None if mt.unit_weight is None else mt.unit_weight / fW, "{:.4g}")])
+    P.append(_table(["material", "description", f"kx ({KU})", f"ky ({KU})", "angle of kx (°)", f"unit weight ({WU})"],
                     rows, {2, 3, 4, 5}))
     P.append("<h3>Zones</h3>")
-    P.append(_table(["zone", "material", "area (m²)", "vertices"],
-                    [[z.name, z.material, _num(abs(_area(p)), "{:.4g}"), len(p)]
+    P.append(_table(["zone", "material", f"area ({LU}²)", "vertices"],
+                    [[z.name, z.material, _num(abs(_area(p)) / fL ** 2, "{:.4g}"), len(p)]
                      for z, p in zip(spec.zones, sec.polygons)], {2, 3}))
     P.append("<h3>Boundaries</h3>")
     brow = []
@@ -183,15 +196,15 @@ def build_report(analysis, figures=None, *, show_mesh: bool = True, arrows: bool
         line = np.asarray(b.polyline, float)
         L = float(np.linalg.norm(np.diff(line, axis=0), axis=1).sum())
         cond = {"seepage_face": "h = y where water leaves, no inflow", "drain": "h = y, outflow only"}.get(
-            b.kind, boundary_label(b).split(": ", 1)[1])
-        brow.append([b.name, b.kind.replace("_", " "), cond, _num(L, "{:.4g}")])
-    P.append(_table(["boundary", "kind", "condition", "polyline length (m)"], brow, {3}))
+            b.kind, boundary_label(b, un).split(": ", 1)[1])
+        brow.append([b.name, b.kind.replace("_", " "), cond, _num(L / fL, "{:.4g}")])
+    P.append(_table(["boundary", "kind", "condition", f"polyline length ({LU})"], brow, {3}))
     P.append('<p class="note">Outline edges not on any boundary carry no flow. Unit weight of water '
-             f"{_num(sec.gamma_w, '{:g}')} kN/m³.</p>")
+             f"{_num(sec.gamma_w / fW, '{:.4g}')} {WU}.</p>")
     st = m.stats
     P.append("<h3>Mesh</h3>")
-    P.append(_table(["elements", "nodes", "order", "element size (m)", "smallest angle (°)", "worst quality (-)"],
-                    [[st.get("elements"), st.get("nodes"), f"P{st.get('order')}", _num(st.get("size_m"), "{:.3g}"),
+    P.append(_table(["elements", "nodes", "order", f"element size ({LU})", "smallest angle (°)", "worst quality (-)"],
+                    [[st.get("elements"), st.get("nodes"), f"P{st.get('order')}", _num(ln(st.get("size_m")), "{:.3g}"),
                       _num(st.get("min_angle_deg"), "{:.1f}"), _num(st.get("worst_quality"), "{:.3f}")]],
                     {0, 1, 3, 4, 5}))
 
@@ -206,24 +219,30 @@ def build_report(analysis, figures=None, *, show_mesh: bool = True, arrows: bool
 
     # flows
     P.append("<h2>Flows</h2>")
-    P.append(_table(["boundary", "kind", "flow (m³/s per m, + into the section)", "flow (m³/day per m)"],
-                    [[b.name, b.kind.replace("_", " "), _num(result.boundary_flow(b.name), "{:+.4e}"),
-                      _num(86400 * result.boundary_flow(b.name), "{:+.4g}")] for b in spec.boundaries], {2, 3}))
+    if un.is_si:
+        P.append(_table(["boundary", "kind", "flow (m³/s per m, + into the section)", "flow (m³/day per m)"],
+                        [[b.name, b.kind.replace("_", " "), _num(result.boundary_flow(b.name), "{:+.4e}"),
+                          _num(86400 * result.boundary_flow(b.name), "{:+.4g}")] for b in spec.boundaries], {2, 3}))
+    else:
+        P.append(_table(["boundary", "kind", f"flow ({FL}, + into the section)", "flow (m³/s per m)"],
+                        [[b.name, b.kind.replace("_", " "), _num(result.boundary_flow(b.name) / fq, "{:+.4e}"),
+                          _num(result.boundary_flow(b.name), "{:+.4e}")] for b in spec.boundaries], {2, 3}))
     bal = result.balance
-    P.append(_table(["inflow (m³/s per m)", "outflow (m³/s per m)", "net (m³/s per m)", "relative error (-)"],
-                    [[_num(bal["inflow_m3_s_per_m"], "{:.4e}"), _num(bal["outflow_m3_s_per_m"], "{:.4e}"),
-                      _num(bal["net_m3_s_per_m"], "{:+.2e}"), _num(bal["relative_error"], "{:.1e}")]], {0, 1, 2, 3}))
+    P.append(_table([f"inflow ({FL})", f"outflow ({FL})", f"net ({FL})", "relative error (-)"],
+                    [[_num(bal["inflow_m3_s_per_m"] / fq, "{:.4e}"), _num(bal["outflow_m3_s_per_m"] / fq, "{:.4e}"),
+                      _num(bal["net_m3_s_per_m"] / fq, "{:+.2e}"), _num(bal["relative_error"], "{:.1e}")]],
+                    {0, 1, 2, 3}))
     fd = net.as_dict()
     P.append("<h3>Flow net</h3>")
     P.append(_table(["quantity", "value"], [
         ["flow channels Nf (-)", _num(fd["n_channels_Nf"], "{:.3f}")],
         ["equipotential drops Nd (-)", fd["n_drops_Nd"]],
-        ["head drop between equipotentials (m)", _num(fd["head_drop_m"], "{:.4g}")],
-        ["flow per channel (m³/s per m)", _num(fd["flow_per_channel_m3_s_per_m"], "{:.4e}")],
-        ["reference k (m/s)", f"{_num(fd['k_ref_m_s'], '{:.3g}')} ({fd['reference_material']})"],
+        [f"head drop between equipotentials ({LU})", _num(fd["head_drop_m"] / fL, "{:.4g}")],
+        [f"flow per channel ({FL})", _num(fd["flow_per_channel_m3_s_per_m"] / fq, "{:.4e}")],
+        [f"reference k ({KU})", f"{_num(fd['k_ref_m_s'] / fK, '{:.3g}')} ({fd['reference_material']})"],
         ["net of squares", "yes" if net.squares else "no (zones differ in k: channels of equal flow)"],
-        ["q from the stream function (m³/s per m)", _num(fd["q_stream_function_m3_s_per_m"], "{:.4e}")],
-        ["q from the boundary reactions (m³/s per m)", _num(fd["q_solver_m3_s_per_m"], "{:.4e}")],
+        [f"q from the stream function ({FL})", _num(fd["q_stream_function_m3_s_per_m"] / fq, "{:.4e}")],
+        [f"q from the boundary reactions ({FL})", _num(fd["q_solver_m3_s_per_m"] / fq, "{:.4e}")],
         ["stream-function misfit (-)", _num(fd["stream_function_misfit"], "{:.2e}")]], {1}))
 
     # checks
@@ -234,18 +253,18 @@ def build_report(analysis, figures=None, *, show_mesh: bool = True, arrows: bool
             g = p.governing
             rows.append([name, g["points"], _num(g["exit_gradient_max"], "{:.3f}"),
                          _num(g["surface_gradient_max"], "{:.3f}"), _num(g["fs"], "{:.2f}"), g["mode"] or "–",
-                         _num(g["distance_from_toe_m"], "{:.1f}"), _num(g["top_stratum_thickness_m"], "{:.2f}"),
-                         _num(g["fails_within_m_of_toe"], "{:.1f}"),
+                         _num(ln(g["distance_from_toe_m"]), "{:.1f}"), _num(ln(g["top_stratum_thickness_m"]), "{:.2f}"),
+                         _num(ln(g["fails_within_m_of_toe"]), "{:.1f}"),
                          _Raw(f'<span class="{"pass" if g["verdict"] == "pass" else "fail"}">{_e(g["verdict"])}</span>')])
         P.append(_table(["boundary", "points", "largest exit gradient (m/m)", "largest surface gradient (m/m)",
-                         "least FS (-)", "governed by", "at distance from toe (m)", "top stratum (m)",
-                         "fails up to (m from toe)", "verdict"], rows, {1, 2, 3, 4, 6, 7, 8}))
+                         "least FS (-)", "governed by", f"at distance from toe ({LU})", f"top stratum ({LU})",
+                         f"fails up to ({LU} from toe)", "verdict"], rows, {1, 2, 3, 4, 6, 7, 8}))
         crit = gv.get("criteria")
         if crit:
             P.append(_table(["criterion", "value"], [[k.replace("_", " "), v] for k, v in crit.items()], {}))
         notes = [n for p in profiles.values() for n in p.notes]
         for n in dict.fromkeys(notes + list(analysis.notes)):
-            P.append(f'<p class="note">{_e(n)}</p>')
+            P.append(f'<p class="note">{_e(display_text(n, un))}</p>')
 
     # hand methods beside the finite elements
     hrows, na = [], []
@@ -255,6 +274,10 @@ def build_report(analysis, figures=None, *, show_mesh: bool = True, arrows: bool
             continue
         for q, unit, label in QUANTITIES[mth.method]:
             hv, fv = mth.values.get(q, (None, None))
+            dim = {"m": "length", "m3/s per m": "flow"}.get(unit)
+            if dim is not None and un.factor(dim) != 1.0:
+                f = un.factor(dim)
+                hv, fv, unit = (None if hv is None else hv / f), (None if fv is None else fv / f), un.label(dim)
             hrows.append([f"{mth.title}: {label} ({unit})", _num(hv), _num(fv), mth.why])
     if hrows or na:
         P.append("<h2>Hand methods beside the finite elements</h2>")

@@ -4,7 +4,9 @@ These models check types, ranges and which keys may appear; geometry (polygons, 
 the outline) is checked afterwards in :mod:`seepfe.geometry`. ``docs/section.schema.json`` is written
 from these models by ``scripts/write_schema.py``.
 
-Units: lengths m, conductivities m/s, unit weights kN/m3, fluxes m/s (m3/s per m2), angles degrees.
+Units: the models hold SI values: lengths m, conductivities m/s, unit weights kN/m3, fluxes m/s (m3/s per
+m2), angles degrees. A file written in other units (its ``"units"`` key) is converted by
+:mod:`seepfe.units` before these models see it, by the dimension markers declared beside each field.
 """
 
 from __future__ import annotations
@@ -14,8 +16,10 @@ from typing import Annotated, Literal, Optional
 
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validator
 
+from .units import K_RANGE, Dim
+
 __all__ = ["MaterialSpec", "ZoneSpec", "BoundarySpec", "BarrierSpec", "RefineSpec", "MeshSpec", "WaterSpec",
-           "SectionSpec"]
+           "SectionSpec", "K_RANGE", "Length", "PositiveLength", "Point", "Conductivity", "Flux", "UnitWeight"]
 
 
 def _finite(v: float) -> float:
@@ -33,11 +37,6 @@ def _positive(v: float) -> float:
 
 Finite = Annotated[float, AfterValidator(_finite)]
 Positive = Annotated[float, AfterValidator(_positive), Field(json_schema_extra={"exclusiveMinimum": 0})]
-Point = Annotated[list[Finite], Field(min_length=2, max_length=2)]
-
-#: conductivities outside this range (m/s) are not soils or rocks and only break the arithmetic
-#: (clean gravel is about 1 m/s, intact rock about 1e-13 m/s; common practice)
-K_RANGE = (1e-20, 10.0)
 
 
 def _conductivity(v: float) -> float:
@@ -47,8 +46,17 @@ def _conductivity(v: float) -> float:
     return v
 
 
-Conductivity = Annotated[float, AfterValidator(_conductivity),
-                         Field(json_schema_extra={"exclusiveMinimum": 0, "maximum": K_RANGE[1]})]
+# ---- dimensioned numbers: the one place a field's dimension is declared (seepfe.units converts the
+# file's units to SI by these markers, labels the JSON Schema and tells sweeps the unit of a key).
+# The models below hold SI values (m, m/s, kN/m3); the range in the JSON Schema is unit-free (> 0).
+Length = Annotated[Finite, Dim("length")]
+PositiveLength = Annotated[Positive, Dim("length")]
+Point = Annotated[list[Length], Field(min_length=2, max_length=2)]
+Flux = Annotated[Finite, Dim("flux")]
+UnitWeight = Annotated[Positive, Dim("unit_weight")]
+PerLength = Annotated[Positive, Dim("per_length")]
+Conductivity = Annotated[float, AfterValidator(_conductivity), Field(json_schema_extra={"exclusiveMinimum": 0}),
+                         Dim("conductivity", k_range=True)]
 
 _CFG = ConfigDict(extra="forbid", strict=True, frozen=True)
 
@@ -57,7 +65,7 @@ class UnsaturatedSpec(BaseModel):
     """van Genuchten (1980) retention with Mualem relative conductivity, for flow above the phreatic surface."""
 
     model_config = _CFG
-    alpha: Positive = Field(description="van Genuchten alpha, 1/m")
+    alpha: PerLength = Field(description="van Genuchten alpha, 1/m")
     n: Annotated[float, AfterValidator(_finite), Field(gt=1.0)] = Field(
         description="van Genuchten n (> 1)")
     kr_min: Annotated[float, Field(gt=0.0, lt=1.0)] = Field(
@@ -72,11 +80,11 @@ class MaterialSpec(BaseModel):
     k: Optional[Conductivity] = Field(None, description="isotropic saturated conductivity, m/s")
     kx: Optional[Conductivity] = Field(None, description="principal conductivity along angle, m/s")
     ky: Optional[Conductivity] = Field(None, description="principal conductivity across angle, m/s")
-    angle: Finite = Field(0.0, description="direction of kx, degrees counter-clockwise from +x")
-    unit_weight: Optional[Positive] = Field(None, description="saturated unit weight, kN/m3")
+    angle: Annotated[Finite, Dim("angle")] = Field(0.0, description="direction of kx, degrees counter-clockwise from +x")
+    unit_weight: Optional[UnitWeight] = Field(None, description="saturated unit weight, kN/m3")
     specific_gravity: Optional[Positive] = Field(None, description="Gs of the solids (-)")
     void_ratio: Optional[Positive] = Field(None, description="void ratio e (-)")
-    d70: Optional[Positive] = Field(None, description="grain size d70, m (piping checks)")
+    d70: Optional[PositiveLength] = Field(None, description="grain size d70, m (piping checks)")
     soil_class: Optional[Literal[
         "very fine sand or silt", "fine sand", "medium sand", "coarse sand", "fine gravel", "medium gravel",
         "coarse gravel including cobbles", "boulders with some cobbles and gravel", "soft clay", "medium clay",
@@ -117,9 +125,9 @@ class BoundarySpec(BaseModel):
     model_config = _CFG
     name: Annotated[str, Field(min_length=1)]
     polyline: Annotated[list[Point], Field(min_length=2)]
-    head: Optional[Finite] = Field(None, description="prescribed total head, m")
+    head: Optional[Length] = Field(None, description="prescribed total head, m")
     seepage_face: bool = Field(False, description="h = y where water leaves, no flow where it would enter")
-    flux: Optional[Finite] = Field(None, description="normal inflow, m/s (positive into the section)")
+    flux: Optional[Flux] = Field(None, description="normal inflow, m/s (positive into the section)")
     drain: bool = Field(False, description="a drain at atmospheric pressure: takes water out, never in")
     dry_above_level: bool = Field(
         False, description="with 'head': the part of the polyline above the water level (y > head) is dry "
@@ -165,8 +173,8 @@ class RefineSpec(BaseModel):
     model_config = _CFG
     polyline: Optional[Annotated[list[Point], Field(min_length=2)]] = None
     point: Optional[Point] = None
-    size: Positive = Field(description="element size on the polyline or at the point, m")
-    width: Optional[Positive] = Field(
+    size: PositiveLength = Field(description="element size on the polyline or at the point, m")
+    width: Optional[PositiveLength] = Field(
         None, description="distance over which the small size holds before it grows, m (default: size)")
 
     @model_validator(mode="after")
@@ -180,7 +188,7 @@ class MeshSpec(BaseModel):
     """Mesh controls. Every key is optional."""
 
     model_config = _CFG
-    size: Optional[Positive] = Field(None, description="element size, m (default: extent / 60)")
+    size: Optional[PositiveLength] = Field(None, description="element size, m (default: extent / 60)")
     refine: list[RefineSpec] = Field(default_factory=list)
     order: Literal[1, 2] = Field(2, description="1: linear triangles, 2: quadratic triangles")
     max_elements: Annotated[int, Field(gt=0)] = Field(
@@ -192,7 +200,7 @@ class MeshSpec(BaseModel):
 
 class WaterSpec(BaseModel):
     model_config = _CFG
-    unit_weight: Positive = Field(9.81, description="unit weight of water, kN/m3")
+    unit_weight: UnitWeight = Field(9.81, description="unit weight of water, kN/m3")
 
 
 class SolverSpec(BaseModel):
@@ -236,22 +244,22 @@ class ChecksSpec(BaseModel):
     boundaries: Optional[list[Annotated[str, Field(min_length=1)]]] = Field(
         None, description="names of the boundaries to check (default: every seepage face, and head "
                           "boundaries at the lowest prescribed head)")
-    spacing: Optional[Positive] = Field(None, description="extra check points every this many m along "
+    spacing: Optional[PositiveLength] = Field(None, description="extra check points every this many m along "
                                                           "each boundary (besides every mesh node)")
     top_stratum: Optional[list[Annotated[str, Field(min_length=1)]]] = Field(
         None, description="names of the zones that make up the landside top stratum (default: found where "
                           "the soil turns markedly more pervious, see 'contrast'); the base of the deepest "
                           "of them is the base of the top stratum")
-    top_stratum_depth: Optional[Positive] = Field(
+    top_stratum_depth: Optional[PositiveLength] = Field(
         None, description="depth of the base of the top stratum below the surface, m (default: found "
                           "from the zones)")
     contrast: Annotated[float, AfterValidator(_finite), Field(gt=1.0)] = Field(
         10.0, description="the substratum is 'markedly more pervious' than the top stratum when its "
                           "vertical conductivity is at least this ratio times the equivalent (series) "
                           "vertical conductivity of the layers above it (-)")
-    toe_x: Optional[Finite] = Field(None, description="x of the landside toe, m (default: inferred)")
-    riverside_toe_x: Optional[Finite] = Field(None, description="x of the riverside toe, m (default: inferred)")
-    landside_water_level: Optional[Finite] = Field(
+    toe_x: Optional[Length] = Field(None, description="x of the landside toe, m (default: inferred)")
+    riverside_toe_x: Optional[Length] = Field(None, description="x of the riverside toe, m (default: inferred)")
+    landside_water_level: Optional[Length] = Field(
         None, description="landside water level (total head), m (default: the ground surface)")
     cutoff: Optional[Annotated[list[Point], Field(min_length=2, max_length=2)]] = Field(
         None, description="a cutoff or sheet pile as [[x, y_top], [x, y_tip]], m, when it is not a "

@@ -7,6 +7,7 @@ one-line :class:`~seepfe.errors.SectionError` naming the file, the item and what
 
 from __future__ import annotations
 
+import dataclasses
 import difflib
 import hashlib
 import math
@@ -27,6 +28,7 @@ from . import geometry
 from .conductivity import conductivity_tensor
 from .errors import SectionError
 from .schema import BoundarySpec, MaterialSpec, SectionSpec
+from .units import SI, Units
 
 __all__ = ["Section", "load_section", "conductivity_tensor"]
 
@@ -49,6 +51,8 @@ class Section:
     graph: geometry.Graph = field(default=None, repr=False)
     remedies: tuple = field(default=(), repr=False)   # per remedy: what it became (seepfe.remedies.apply)
     boundary_parts: dict = field(default_factory=dict, repr=False)   # a boundary remedies split: its pieces
+    units: Units = SI                         # the file's units (values above are SI); results are shown in them
+    warnings: tuple = ()                      # things worth a look that are not errors (one line each)
 
     @property
     def title(self) -> str:
@@ -282,10 +286,19 @@ def load_section(path_or_dict) -> Section:
         On any fault, with one line naming the file, the item and what is wrong.
     """
     data, label = _read(path_or_dict)
-    # parameters and '=' expressions first, then remedial measures; the original dict keeps the hash
-    from . import params, remedies
+    # parameters and '=' expressions first, then the file's units to SI, then remedial measures;
+    # the original dict keeps the hash
+    from . import params, remedies, units as units_mod
+    units = units_mod.parse_units(data.get("units"), label)
+    _check_schema_key(data, label)
     work = params.resolve(data, label)
+    work.pop("units", None)
+    work.pop("$schema", None)
     measures = work.pop("remedies", None)
+    hints = units_mod.conductivity_hints(work.get("materials"), units)
+    work = units_mod.to_si(SectionSpec, work, units, label)
+    if measures is not None:
+        measures = units_mod.to_si(list[remedies.Remedy], measures, units, label)
     try:
         spec = SectionSpec.model_validate(work)
     except ValidationError as e:
@@ -299,9 +312,18 @@ def load_section(path_or_dict) -> Section:
         except ValidationError as e:
             raise SectionError(_format_pydantic(e, work, label) + " (after applying the remedies)") from None
     try:
-        return _build(spec, data, label, tuple(notes), parts)
+        sec = _build(spec, data, label, tuple(notes), parts)
     except SectionError as e:
         raise SectionError(f"{label}: {e}") from None
+    return dataclasses.replace(sec, units=units, warnings=tuple(hints))
+
+
+def _check_schema_key(data: dict, label: str) -> None:
+    """``"$schema"`` (where an editor finds the JSON Schema) is accepted and ignored; it must be a string."""
+    v = data.get("$schema")
+    if v is not None and not isinstance(v, str):
+        raise SectionError(f"{label}: $schema: expected a string (the address of the JSON Schema), "
+                           f"got {type(v).__name__}")
 
 
 #: largest coordinate accepted, m (squares of coordinates must stay far from overflow)

@@ -135,6 +135,7 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
     if mesh is None:
         mesh = make_mesh(section, order=order, size=size)
     t1 = time.perf_counter()
+    log.info("mesh: %d P%d triangles, %d nodes (%.2f s)", mesh.n_elements, mesh.order, mesh.n_nodes, t1 - t0)
     sspec = section.spec.solver
     method = linear or sspec.linear
     Kz = section.zone_tensors()
@@ -173,6 +174,8 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
         release = face_fixed & (rf > rtol * scale)          # inflow at an outflow point
         catch = ~face_fixed & (h[bc.face_nodes] > y[bc.face_nodes] + htol)  # head above ground, no outlet
         history.append(int(face_fixed.sum()))
+        log.info("seepage-face pass %d: %d of %d face nodes held at h = y", it, int(face_fixed.sum()),
+                 len(bc.face_nodes))
         if not release.any() and not catch.any():
             converged = True
             break
@@ -186,6 +189,8 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
         h, A, fixed, face_fixed = unconf.h, unconf.matrix, unconf.fixed, unconf.face_active
         converged = unconf.converged     # the active set of the faces is iterated inside it
     t3 = time.perf_counter()
+    log.info("solved: %d unknowns, %s (%.2f s)", A.shape[0] - len(fixed),
+             "converged" if converged else "NOT converged", t3 - t2)
     reactions = A @ h - bc.load
     solver = cache["solver"]
     info = {

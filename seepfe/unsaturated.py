@@ -396,6 +396,7 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
         kr_e, dkr, A, r = residual(h)
         rel, floor = measures(A, r, h, free_mask, fixed)
         history.append(float(rel))
+        log.info("unconfined iteration %d: relative flow residual %.2e", it, rel)
         if model.stretch == 1.0 and (best is None or rel < best[0]):
             best = (rel, h.copy(), A, kr_e, face.copy(), floor, it)
         # active set of the seepage faces and drains, updated with the current iterate

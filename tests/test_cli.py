@@ -44,3 +44,96 @@ def test_solve_refuses_a_foreign_folder(tmp_path, capsys):
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and err[0].startswith("seepfe: error:")
     assert (foreign / "notes.txt").read_text() == "keep me"
+
+
+def test_a_missing_gmsh_library_is_one_line_naming_the_packages(monkeypatch, capsys):
+    import importlib.abc
+    import re
+    import sys
+
+    from seepfe.mesh import GMSH_SYSTEM_PACKAGES
+
+    class NoGLU(importlib.abc.MetaPathFinder):
+        def find_spec(self, name, path=None, target=None):
+            if name == "gmsh":
+                raise OSError("libGLU.so.1: cannot open shared object file: No such file or directory")
+            return None
+
+    monkeypatch.delitem(sys.modules, "gmsh", raising=False)
+    monkeypatch.setattr(sys, "meta_path", [NoGLU()] + sys.meta_path)
+    assert main(["check", str(DEMO), "--order", "1"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "libGLU.so.1" in err[0] and "libglu1-mesa" in err[0]
+    # the same packages as scripts/install.sh installs
+    sh = (DEMO.parent.parent / "scripts" / "install.sh").read_text()
+    assert re.search(r'GMSH_LIBS="([^"]+)"', sh).group(1).split() == GMSH_SYSTEM_PACKAGES.split()
+
+
+def test_python_m_seepfe_runs_the_command_line():
+    import subprocess
+    import sys
+    root = DEMO.parent.parent
+    p = subprocess.run([sys.executable, "-m", "seepfe", "--version"], capture_output=True, text=True, cwd=root)
+    assert p.returncode == 0 and p.stdout.startswith("seepfe ")
+
+
+def test_every_subcommand_has_a_description_examples_and_exit_codes(capsys):
+    import pytest
+
+    from seepfe.cli import SUBCOMMANDS
+    for name in SUBCOMMANDS:
+        with pytest.raises(SystemExit) as e:
+            main([name, "--help"])
+        assert e.value.code == 0
+        out = capsys.readouterr().out
+        assert "examples:" in out and "exit codes:" in out and "  4    a sweep stopped early" in out, name
+    solving = {"solve", "plot", "report", "sweep"}
+    for name in solving:
+        main_help = _help(name, capsys)
+        assert "--size" in main_help and "--order" in main_help and "--linear" in main_help, name
+
+
+def _help(name, capsys):
+    import pytest
+    with pytest.raises(SystemExit):
+        main([name, "--help"])
+    return capsys.readouterr().out
+
+
+def test_quiet_prints_nothing_but_errors_and_verbose_logs_stages_to_stderr(tmp_path, capsys):
+    assert main(["-q", "solve", str(DEMO), "--out", str(tmp_path / "q"), "--order", "1", "--size", "10"]) == 0
+    cap = capsys.readouterr()
+    assert cap.out == "" and cap.err == ""
+    assert (tmp_path / "q" / "summary.json").exists()
+    assert main(["-q", "solve", str(DEMO) + ".missing", "--out", str(tmp_path / "x")]) == 2
+    cap = capsys.readouterr()
+    assert cap.out == "" and cap.err.startswith("seepfe: error:")
+    assert main(["-v", "plot", str(DEMO), "--out", str(tmp_path / "v"), "--order", "1", "--size", "10",
+                 "--no-detail"]) == 0
+    cap = capsys.readouterr()
+    assert "seepfe: mesh:" in cap.err and "seepfe: checks along" in cap.err
+    assert "seepfe: figure 1 of " in cap.err and "seepfe:" not in cap.out
+    assert "written:" in cap.out
+
+
+def test_size_is_in_the_file_length_unit(capsys):
+    us = DEMO.parent / "levee_us.json"
+    assert main(["check", str(us), "--order", "1", "--size", "20"]) == 0
+    out = capsys.readouterr().out
+    row = out.split("mesh")[-1].splitlines()[3].split()
+    assert "size (ft)" in out and float(row[3]) == 20.0
+    import pytest
+    with pytest.raises(SystemExit) as e:              # argparse's own usage error: exit code 2
+        main(["check", str(us), "--size", "-1"])
+    assert e.value.code == 2 and "must be a finite number > 0" in capsys.readouterr().err
+
+
+def test_output_folders_follow_the_umask(tmp_path, capsys):
+    import os
+    old = os.umask(0o022)
+    try:
+        assert main(["solve", str(DEMO), "--out", str(tmp_path / "o"), "--order", "1", "--size", "10"]) == 0
+    finally:
+        os.umask(old)
+    assert (tmp_path / "o").stat().st_mode & 0o777 == 0o755
+    assert (tmp_path / "o" / "input").stat().st_mode & 0o777 == 0o755

@@ -24,6 +24,11 @@ def test_committed_schema_is_up_to_date():
     assert committed == _writer().schema_text(), "run: python scripts/write_schema.py"
 
 
+def test_committed_sweep_schema_is_up_to_date():
+    committed = (ROOT / "docs" / "sweep.schema.json").read_text(encoding="utf-8")
+    assert committed == _writer().sweep_schema_text(), "run: python scripts/write_schema.py"
+
+
 def test_schema_names_the_core_keys_and_units():
     s = json.loads((ROOT / "docs" / "section.schema.json").read_text(encoding="utf-8"))
     assert s["additionalProperties"] is False
@@ -31,9 +36,12 @@ def test_schema_names_the_core_keys_and_units():
     mat = s["$defs"]["MaterialSpec"]["properties"]
     for key in ("k", "kx", "ky", "angle", "unit_weight"):
         assert key in mat
-    assert "m/s" in mat["k"]["description"]
-    # k > 0 is visible to editors (exclusive minimum on the number branch)
-    assert {"exclusiveMinimum": 0, "maximum": 10.0, "type": "number"} in mat["k"]["anyOf"]
+    assert "m/s" in mat["k"]["description"] and "cm/s" in mat["k"]["description"]
+    # k > 0 is visible to editors (exclusive minimum on the number branch); its dimension too. The
+    # upper end of the range depends on the file's units, so the loader checks it, not the schema.
+    assert {"exclusiveMinimum": 0, "type": "number", "x-dimension": "conductivity"} in mat["k"]["anyOf"]
+    assert {"SI", "US"} <= set(s["properties"]["units"]["anyOf"][0]["enum"])
+    assert "$schema" in s["properties"]
     bnd = s["$defs"]["BoundarySpec"]["properties"]
     for key in ("name", "polyline", "head", "seepage_face", "flux"):
         assert key in bnd
@@ -52,6 +60,20 @@ def test_example_sections_pass_the_schema(path):
     data = json.loads(path.read_text(encoding="utf-8"))
     assert not sorted(set(data) - set(s["properties"]))
     jsonschema.validate(data, s)
+
+
+def _sweep_files():
+    return [p for p in sorted((ROOT / "sections").glob("*.sweep.json"))]
+
+
+@pytest.mark.parametrize("path", _sweep_files(), ids=lambda p: p.name)
+def test_example_sweeps_pass_the_sweep_schema(path):
+    jsonschema = pytest.importorskip("jsonschema")
+    s = json.loads((ROOT / "docs" / "sweep.schema.json").read_text(encoding="utf-8"))
+    jsonschema.validate(json.loads(path.read_text(encoding="utf-8")), s)
+    bad = {**json.loads(path.read_text(encoding="utf-8")), "units": "metric"}
+    with pytest.raises(jsonschema.ValidationError):
+        jsonschema.validate(bad, s)
 
 
 def test_schema_rejects_an_unknown_key():

@@ -111,9 +111,11 @@ class ExitChecks:
                 "fs_heave": self.fs_heave, "fs_uplift": self.fs_uplift, "fs": self.fs,
                 "passes": self.passes.astype(float)}
 
-    def to_csv(self, path) -> None:
-        """Write one row per check point; the header names carry units (gradients m/m, FS -)."""
-        cols = self.columns()
+    def to_csv(self, path, units=None) -> None:
+        """Write one row per check point; the header names carry units (gradients m/m, FS -). With
+        ``units`` (seepfe.units.Units) other than SI, the lengths follow again in those units."""
+        from ..units import display_columns
+        cols = display_columns(self.columns(), units)
         np.savetxt(path, np.column_stack([np.asarray(v, float) for v in cols.values()]), delimiter=",",
                    header=",".join(cols), comments="", fmt="%.10g")
 

@@ -2,13 +2,17 @@
 
 Each subcommand module has ``register(subparsers)``, which adds its parser and sets ``func``.
 ``main(argv)`` returns an exit code and never raises for bad input: a seepfe error becomes one line
-``seepfe: error: ...`` on stderr and exit code 2 (3 for a solve that did not converge).
+``seepfe: error: ...`` on stderr and exit code 2 (3 for a solve that did not converge, 4 for a sweep
+stopped early, 130 when interrupted; :data:`seepfe.cli.common.EXIT_CODES`). Results go to stdout;
+``-v`` logs the stages to stderr, ``-q`` prints nothing but errors; progress bars go to stderr.
 """
 
 from __future__ import annotations
 
 import argparse
+import contextlib
 import importlib
+import io
 import logging
 import sys
 
@@ -19,14 +23,24 @@ from ..about import CAUTION
 __all__ = ["main", "build_parser", "SUBCOMMANDS"]
 
 #: subcommand modules, in the order ``--help`` lists them
-SUBCOMMANDS = ["check", "solve", "sweep", "plot", "report"]
+SUBCOMMANDS = ["build", "check", "solve", "sweep", "plot", "report"]
 
 
 def build_parser() -> argparse.ArgumentParser:
+    from .common import EXIT_CODES
     p = argparse.ArgumentParser(prog="seepfe", description="Steady seepage through and under levee and dam "
-                                "sections by finite elements. " + CAUTION)
+                                "sections by finite elements. " + CAUTION,
+                                epilog="examples:\n  seepfe build sections/levee_borings.build.json --out levee.json\n"
+                                       "  seepfe check levee.json\n  seepfe solve levee.json --out runs/levee\n"
+                                       "  seepfe report levee.json --out runs/levee-report\n"
+                                       "  seepfe SUBCOMMAND --help   (what each does, its options and examples)\n\n"
+                                       + EXIT_CODES,
+                                formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--version", action="version", version=f"seepfe {__version__}")
-    p.add_argument("-v", "--verbose", action="store_true", help="log progress to stderr")
+    talk = p.add_mutually_exclusive_group()
+    talk.add_argument("-v", "--verbose", action="store_true",
+                      help="log the stages (mesh, solve iterations, checks, figures) to stderr")
+    talk.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
     sub = p.add_subparsers(dest="command", required=True)
     for name in SUBCOMMANDS:
         importlib.import_module(f"{__name__}.{name}").register(sub)
@@ -36,15 +50,27 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
-    logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING, format="seepfe: %(message)s")
+    level = logging.INFO if args.verbose else logging.ERROR if args.quiet else logging.WARNING
+    lg = logging.getLogger("seepfe")
+    handler = logging.StreamHandler(sys.stderr)            # the stderr of this call (tests swap it)
+    handler.setFormatter(logging.Formatter("seepfe: %(message)s"))
+    old = (lg.level, lg.propagate, list(lg.handlers))
+    lg.handlers[:] = [handler]
+    lg.setLevel(level)
+    lg.propagate = False
     try:
-        return args.func(args)
+        with contextlib.redirect_stdout(io.StringIO()) if args.quiet else contextlib.nullcontext():
+            return args.func(args)
     except SeepfeError as e:
         print(f"seepfe: error: {e}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("seepfe: interrupted", file=sys.stderr)
         return 130
+    finally:
+        lg.setLevel(old[0])
+        lg.propagate = old[1]
+        lg.handlers[:] = old[2]
 
 
 if __name__ == "__main__":  # pragma: no cover

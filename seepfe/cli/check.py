@@ -2,11 +2,15 @@
 
 from __future__ import annotations
 
-from .common import add_section_args, table
+from .common import add_section_args, parser_for, table
 
 
 def register(sub) -> None:
-    c = sub.add_parser("check", help="validate a section file and mesh it; print a summary")
+    c = parser_for(sub, "check", "validate a section file and mesh it; print a summary",
+                   "Validate a section file (keys, units, geometry, tiling, boundaries), mesh it and print "
+                   "its materials, boundaries and mesh quality in the file's units. Writes nothing.",
+                   "  seepfe check sections/levee_blanket.json\n"
+                   "  seepfe check sections/levee_us.json --order 1 --size 10")
     add_section_args(c, out=False)
     c.set_defaults(func=run)
 
@@ -15,17 +19,23 @@ def run(args) -> int:
     from ..mesh import make_mesh
     from ..section import load_section
     sec = load_section(args.section)
-    m = make_mesh(sec, order=args.order)
+    u = sec.units
+    m = make_mesh(sec, order=args.order, size=None if args.size is None else args.size * u.factor("length"))
     s = sec.spec
-    print(f"{sec.source}: valid. {s.title}")
-    print(table("materials", ["name", "kx (m/s)", "ky (m/s)", "angle (deg)", "unit weight (kN/m3)"],
-                [[n, f"{(x.k or x.kx):.3g}", f"{(x.k or x.ky):.3g}", f"{x.angle:g}",
-                  "-" if x.unit_weight is None else f"{x.unit_weight:g}"] for n, x in s.materials.items()]))
+    print(f"{sec.source}: valid. {s.title}" + ("" if u.is_si else f" (units {u.name})"))
+    for w in sec.warnings:
+        print(f"warning: {w}")
+    K, fK, W, fW, L, fL = u.conductivity, u.factor("conductivity"), u.unit_weight, u.factor("unit_weight"), \
+        u.length, u.factor("length")
+    print(table("materials", ["name", f"kx ({K})", f"ky ({K})", "angle (deg)", f"unit weight ({W})"],
+                [[n, f"{(x.k or x.kx) / fK:.3g}", f"{(x.k or x.ky) / fK:.3g}", f"{x.angle:g}",
+                  "-" if x.unit_weight is None else f"{x.unit_weight / fW:.4g}"] for n, x in s.materials.items()]))
     print(table("boundaries", ["name", "kind", "value"],
-                [[b.name, b.kind, {"head": f"h = {b.head} m", "flux": f"q = {b.flux} m/s"}.get(b.kind, "h = y")]
-                 for b in s.boundaries]))
+                [[b.name, b.kind, {"head": f"h = {b.head / fL:.6g} {L}" if b.head is not None else "",
+                                   "flux": f"q = {u.from_si(b.flux or 0.0, 'flux'):.4g} {u.label('flux')}"}
+                  .get(b.kind, "h = y")] for b in s.boundaries]))
     st = m.stats
-    print(table("mesh", ["elements", "nodes", "order", "size (m)", "min angle (deg)", "worst quality", "time (s)"],
-                [[st["elements"], st["nodes"], st["order"], f"{st['size_m']:.3g}", f"{st['min_angle_deg']:.1f}",
+    print(table("mesh", ["elements", "nodes", "order", f"size ({L})", "min angle (deg)", "worst quality", "time (s)"],
+                [[st["elements"], st["nodes"], st["order"], f"{st['size_m'] / fL:.3g}", f"{st['min_angle_deg']:.1f}",
                   f"{st['worst_quality']:.3f}", f"{st['mesh_s']:.2f}"]]))
     return 0

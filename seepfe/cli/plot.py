@@ -3,16 +3,20 @@
 from __future__ import annotations
 
 from ..about import CAUTION
-from .common import add_section_args
+from .common import add_solve_args, parser_for, solve_section
 
 
 def register(sub) -> None:
-    p = sub.add_parser("plot", help="solve a section and write its figures (PNG and SVG) to a folder")
-    add_section_args(p)
+    p = parser_for(sub, "plot", "solve a section and write its figures (PNG and SVG) to a folder",
+                   "Solve a section and draw the section, total head, pore pressure (or pressure head), the "
+                   "flow net and the exit-gradient profiles, as PNG and SVG, in the section file's units.",
+                   "  seepfe plot sections/levee_blanket.json --out runs/figures\n"
+                   "  seepfe plot sections/small_dam.json --out runs/dam --mesh --arrows")
+    add_solve_args(p)
     p.add_argument("--mesh", action="store_true", help="also draw the mesh")
     p.add_argument("--arrows", action="store_true", help="also draw Darcy-velocity arrows")
     p.add_argument("--pressure", choices=("pore_pressure", "pressure_head"), default="pore_pressure",
-                   help="second field figure: pore-water pressure (kPa, default) or pressure head (m)")
+                   help="second field figure: pore-water pressure (default) or pressure head")
     p.add_argument("--no-detail", dest="detail", action="store_false",
                    help="no closer views of long, flat sections")
     p.set_defaults(func=run)
@@ -22,8 +26,7 @@ def run(args) -> int:
     from ..analysis import analyse
     from ..output import atomic_dir, write_json
     from ..plot import figure_set, save_figure
-    from ..solver import solve
-    res = solve(args.section, order=args.order)
+    res = solve_section(args)
     a = analyse(res)
     net = a.flow_net
     written = []
@@ -37,9 +40,12 @@ def run(args) -> int:
                                           "governing": a.governing, "caution": CAUTION})
     print(f"written: {args.out}/ ({len(written)} figures as PNG and SVG: {', '.join(written)})")
     sq = "" if net.squares else " (zones differ in k: channels of equal flow)"
-    print(f"flow net: Nf = {net.n_channels:.2f}, Nd = {net.n_drops}{sq}; q = {net.q_total:.4e} m3/s per m "
-          f"(solver {net.q_solver:.4e})")
+    u = res.section.units
+    fq = u.factor("flow")
+    print(f"flow net: Nf = {net.n_channels:.2f}, Nd = {net.n_drops}{sq}; q = {net.q_total / fq:.4e} "
+          f"{u.label('flow')} (solver {net.q_solver / fq:.4e})")
     g = a.governing
-    print(f"verdict: {g['verdict'].upper()}: {g['why']}")
+    from ..units import display_text
+    print(f"verdict: {g['verdict'].upper()}: {display_text(g['why'], u)}")
     print(f"CAUTION: {CAUTION}")
     return 0 if res.solver_info.get("converged", True) else 3

@@ -2,12 +2,16 @@
 
 from __future__ import annotations
 
-from .common import add_section_args
+from .common import add_solve_args, parser_for, solve_section
 
 
 def register(sub) -> None:
-    p = sub.add_parser("report", help="solve a section and write a self-contained HTML report to a folder")
-    add_section_args(p)
+    p = parser_for(sub, "report", "solve a section and write a self-contained HTML report to a folder",
+                   "Solve a section and write everything `seepfe solve` writes, the figures, and one "
+                   "self-contained report.html (and report.pdf with --pdf), in the section file's units.",
+                   "  seepfe report sections/levee_blanket.json --out runs/report\n"
+                   "  seepfe report sections/levee_us.json --out runs/us-report --pdf")
+    add_solve_args(p)
     p.add_argument("--pdf", action="store_true", help="also print the report to report.pdf (headless Chromium)")
     p.set_defaults(func=run)
 
@@ -16,9 +20,8 @@ def run(args) -> int:
     from ..analysis import analyse
     from ..output import atomic_dir, write_analysis
     from ..report import write_pdf, write_report
-    from ..solver import solve
     from .solve import finish
-    res = solve(args.section, order=args.order)
+    res = solve_section(args)
     a = analyse(res)
     with atomic_dir(args.out) as tmp:
         written = write_analysis(a, tmp)

@@ -2,21 +2,24 @@
 
 from __future__ import annotations
 
-from .common import add_section_args
+from .common import add_solve_args, parser_for, solve_section
 
 
 def register(sub) -> None:
-    s = sub.add_parser("solve", help="solve a section and write results to a folder")
-    add_section_args(s)
-    s.add_argument("--linear", choices=("auto", "direct", "amg"), default=None, help="linear solver")
+    s = parser_for(sub, "solve", "solve a section and write results to a folder",
+                   "Solve a section for steady seepage; print flows, exit points, the underseepage checks and "
+                   "the hand methods beside the FE; write summary.json (SI), CSV tables, the phreatic line, flow "
+                   "lines and equipotentials (CSV, GeoJSON, DXF), result.vtu and a copy of the input.",
+                   "  seepfe solve sections/levee_blanket.json --out runs/blanket\n"
+                   "  seepfe solve sections/levee_us.json --out runs/us --order 1 --size 5   (size in ft here)")
+    add_solve_args(s)
     s.set_defaults(func=run)
 
 
 def run(args) -> int:
     from ..analysis import analyse
     from ..output import atomic_dir, write_analysis
-    from ..solver import solve
-    res = solve(args.section, order=args.order, linear=args.linear)
+    res = solve_section(args)
     a = analyse(res)
     with atomic_dir(args.out) as tmp:
         written = write_analysis(a, tmp)

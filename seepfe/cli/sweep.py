@@ -10,12 +10,17 @@ from __future__ import annotations
 import math
 
 from ..about import CAUTION
-from .common import table
+from .common import parser_for, table
 
 
 def register(sub) -> None:
-    s = sub.add_parser("sweep", help="run a sweep file on a section: table of cases, target searches, "
-                                     "fragility (resumable, parallel)")
+    s = parser_for(sub, "sweep", "run a sweep file on a section: table of cases, target searches, "
+                                 "fragility (resumable, parallel)",
+                   "Solve many cases of one section from a sweep file: a table of cases, target searches and "
+                   "fragility curves, on all cores or a Dask cluster; finished cases are cached, so a stopped "
+                   "sweep resumes. Progress goes to stderr.",
+                   "  seepfe sweep sections/levee_blanket.json sections/levee_blanket.sweep.json --out runs/sweep\n"
+                   "  seepfe sweep levee.json plan.json --out runs/plan --order 1 --size 2 --max-solves 50")
     s.add_argument("section", help="section file (JSON)")
     s.add_argument("sweep", help="sweep file (JSON), see docs/sweeps.md")
     s.add_argument("--out", required=True, help="sweep folder: cases/ (cache) and results/ (final files)")
@@ -26,7 +31,10 @@ def register(sub) -> None:
     s.add_argument("--max-solves", type=int, default=None,
                    help="solve at most this many new cases now; run again to continue")
     s.add_argument("--order", type=int, choices=(1, 2), default=None, help="element order for every case")
-    s.add_argument("--size", type=float, default=None, help="element size for every case, m")
+    s.add_argument("--size", type=float, default=None,
+                   help="element size for every case, in the section file's length unit")
+    s.add_argument("--linear", choices=("auto", "direct", "amg"), default=None,
+                   help="linear solver for every case (default: the file's solver.linear)")
     s.add_argument("--no-plots", action="store_true", help="write the tables only")
     s.set_defaults(func=run)
 
@@ -39,10 +47,25 @@ def run(args) -> int:
     from ..sweep import run_sweep
     if args.workers is not None and args.workers < 1:
         raise SeepfeError("--workers must be at least 1")
-    solve = {k: v for k, v in (("order", args.order), ("size", args.size)) if v is not None}
+    import sys
+
+    from rich.console import Console
+    size = args.size
+    if size is not None:
+        if not (size > 0 and math.isfinite(size)):
+            raise SeepfeError(f"--size must be a finite number > 0, got {size:g}")
+        from ..section import _read
+        from ..units import parse_units
+        data, label = _read(args.section)
+        size = size * parse_units(data.get("units"), label).factor("length")      # m, as run_sweep takes it
+    solve = {k: v for k, v in (("order", args.order), ("size", size), ("linear", args.linear)) if v is not None}
     tasks: dict[str, int] = {}
+    # progress goes to stderr (stdout carries only results); nothing at all under -q
+    quiet = bool(getattr(args, "quiet", False))
+    console = Console(file=sys.stderr, quiet=quiet)
     with Progress(TextColumn("{task.description}"), BarColumn(bar_width=24), MofNCompleteColumn(),
-                  TimeElapsedColumn(), TextColumn("left"), TimeRemainingColumn(), transient=False) as bar:
+                  TimeElapsedColumn(), TextColumn("left"), TimeRemainingColumn(), transient=False,
+                  console=console, disable=quiet) as bar:
         def progress(stage, done, total, cached):
             if stage not in tasks:
                 # cached cases are counted as done before the clock starts, so the estimate is honest

@@ -15,7 +15,7 @@ from .style import FIG_WIDTH_IN, INK, KIND_COLOUR, MUTED, zone_colours
 
 __all__ = ["Frame", "frame", "draw_zones", "draw_zone_edges", "draw_boundaries", "draw_mesh",
            "material_handles", "fmt_k", "fmt_sci", "window_of", "detail_window", "triangulation",
-           "contour_pieces", "boundary_label"]
+           "contour_pieces", "boundary_label", "length_axis"]
 
 _LEFT, _RIGHT, _TOP, _XLAB = 0.72, 0.18, 0.42, 0.44       # inches
 
@@ -107,13 +107,33 @@ def detail_window(section, max_ratio: float = 4.5):
     return (a, b, y0 - 0.04 * Hs, y1 + 0.16 * Hs)
 
 
-def frame(window, max_height_in: float = 6.5, title: str | None = None) -> Frame:
+def length_axis(axis, units=None) -> str:
+    """Ticks of an axis drawn in m at round values of the display length unit; returns the unit's name.
+
+    The figure keeps SI coordinates; only the tick positions and their labels follow ``units``.
+    """
+    if units is None or units.length == "m":
+        return "m"
+    from matplotlib.ticker import FuncFormatter, MaxNLocator
+    f = units.factor("length")
+
+    class _Scaled(MaxNLocator):
+        def tick_values(self, vmin, vmax):
+            return np.asarray(super().tick_values(vmin / f, vmax / f)) * f
+
+    axis.set_major_locator(_Scaled(nbins="auto", steps=[1, 2, 2.5, 5, 10]))
+    axis.set_major_formatter(FuncFormatter(lambda v, pos: f"{round(v / f, 9):g}"))
+    return units.length
+
+
+def frame(window, max_height_in: float = 6.5, title: str | None = None, units=None) -> Frame:
     """A figure whose section axes has exactly the aspect of the window (no wasted space).
 
     Parameters
     ----------
     window : (x0, x1, y0, y1) in m.
     title : the figure title, drawn at the top left.
+    units : seepfe.units.Units the axes are labelled in (default m).
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
@@ -136,8 +156,10 @@ def frame(window, max_height_in: float = 6.5, title: str | None = None) -> Frame
     ax.set_xlim(x0, x1)
     ax.set_ylim(y0, y1)
     ax.set_aspect("equal", adjustable="box")
-    ax.set_xlabel("distance x (m)")
-    ax.set_ylabel("elevation y (m)")
+    u = length_axis(ax.xaxis, units)
+    length_axis(ax.yaxis, units)
+    ax.set_xlabel(f"distance x ({u})")
+    ax.set_ylabel(f"elevation y ({u})")
     if title:
         ax.set_title(title, pad=12)
     fr = Frame(fig, ax, W, H, (_LEFT, _XLAB, aw, ah), 0.0)
@@ -155,15 +177,16 @@ def fmt_sci(v: float, digits: int = 1) -> str:
     if round(m, digits) >= 10:
         m, e = m / 10, e + 1
     if e in (-1, 0, 1, 2):
-        return f"{v:.{max(digits + 1 - e, 0)}g}" if e >= 0 else f"{v:.{digits + 1}g}"
+        return f"{v:.{max(digits + 1, e + 1)}g}" if e >= 0 else f"{v:.{digits + 1}g}"
     return rf"${m:.{digits}f}\times10^{{{e}}}$"
 
 
-def fmt_k(mat) -> str:
-    """Conductivity of a material for a legend, m/s."""
+def fmt_k(mat, units=None) -> str:
+    """Conductivity of a material for a legend, m/s (or the display unit of ``units``)."""
+    f, u = (1.0, "m/s") if units is None else (units.factor("conductivity"), units.conductivity)
     if mat.k is not None:
-        return f"k = {fmt_sci(mat.k)} m/s"
-    s = f"kx = {fmt_sci(mat.kx)}, ky = {fmt_sci(mat.ky)} m/s"
+        return f"k = {fmt_sci(mat.k / f)} {u}"
+    s = f"kx = {fmt_sci(mat.kx / f)}, ky = {fmt_sci(mat.ky / f)} {u}"
     if mat.angle:
         s += f", kx at {mat.angle:g}°"
     return s
@@ -203,17 +226,19 @@ def material_handles(section, colours: dict) -> list:
     out = []
     for name in dict.fromkeys(z.material for z in section.spec.zones):
         mat = section.spec.materials[name]
-        out.append(Patch(facecolor=colours[name], edgecolor=INK, linewidth=0.5, label=f"{name}: {fmt_k(mat)}"))
+        out.append(Patch(facecolor=colours[name], edgecolor=INK, linewidth=0.5, label=f"{name}: {fmt_k(mat, section.units)}"))
     return out
 
 
-def boundary_label(b) -> str:
-    """'river: head 4.50 m', 'landside: seepage face', ..."""
+def boundary_label(b, units=None) -> str:
+    """'river: head 4.50 m', 'landside: seepage face', ... (values in the display units of ``units``)."""
+    from ..units import SI
+    u = units or SI
     if b.kind == "head":
-        s = f"{b.name}: head {b.head:.2f} m"
+        s = f"{b.name}: head {u.from_si(b.head, 'length'):.2f} {u.length}"
         return s + " (dry above)" if b.dry_above_level else s
     if b.kind == "flux":
-        return f"{b.name}: inflow {fmt_sci(b.flux)} m/s"
+        return f"{b.name}: inflow {fmt_sci(u.from_si(b.flux, 'flux'))} {u.label('flux')}"
     return f"{b.name}: {'seepage face' if b.kind == 'seepage_face' else 'drain'}"
 
 
@@ -252,7 +277,7 @@ def draw_boundaries(ax, section, labels: bool = True, window=None, zorder: float
         off = 9.0
         ha = "center" if abs(n[0]) < 0.5 else ("left" if n[0] > 0 else "right")
         va = "center" if abs(n[1]) < 0.5 else ("bottom" if n[1] > 0 else "top")
-        ann = ax.annotate(boundary_label(b), mid, xytext=(off * n[0], off * n[1]), textcoords="offset points",
+        ann = ax.annotate(boundary_label(b, section.units), mid, xytext=(off * n[0], off * n[1]), textcoords="offset points",
                           ha=ha, va=va, fontsize=7, color=col, zorder=zorder + 1, annotation_clip=True,
                           bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.85))
         _keep_clear(ax, ann, n, placed)

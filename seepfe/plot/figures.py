@@ -16,11 +16,11 @@ from .style import INK, MUTED, OKABE_ITO, field_cmap, style
 __all__ = ["section_figure", "field_figure", "flow_net_figure", "velocity_figure", "contour_levels",
            "phreatic_lines", "FIELDS"]
 
-#: quantity -> (name, unit, function of the result giving nodal values)
+#: quantity -> (name, SI unit, function of the result giving nodal values (SI), dimension)
 FIELDS = {
-    "total_head": ("total head", "m", lambda r: r.h),
-    "pressure_head": ("pressure head", "m", lambda r: r.pressure_head),
-    "pore_pressure": ("pore-water pressure", "kPa", lambda r: r.pore_pressure),
+    "total_head": ("total head", "m", lambda r: r.h, "length"),
+    "pressure_head": ("pressure head", "m", lambda r: r.pressure_head, "length"),
+    "pore_pressure": ("pore-water pressure", "kPa", lambda r: r.pore_pressure, "pressure"),
 }
 
 
@@ -80,7 +80,7 @@ def section_figure(section, mesh=None, window=None, title: str | None = None, sh
     """
     win = window if window is not None else base.window_of(section)
     with style():
-        fr = base.frame(win, title=title or section.title or "Section")
+        fr = base.frame(win, title=title or section.title or "Section", units=section.units)
         ax = fr.ax
         colours = base.draw_zones(ax, section)
         if show_mesh and mesh is not None:
@@ -111,9 +111,11 @@ def field_figure(result, quantity: str = "total_head", window=None, title: str |
     import matplotlib.colors as mcolors
     if quantity not in FIELDS:
         raise ValueError(f"unknown quantity '{quantity}' (use {', '.join(FIELDS)})")
-    label, unit, get = FIELDS[quantity]
-    v = np.asarray(get(result), float)
+    label, unit, get, dim = FIELDS[quantity]
     sec = result.section
+    # contoured in the display unit (the file's), at round values of it
+    v = np.asarray(get(result), float) / sec.units.factor(dim)
+    unit = sec.units.label(dim)
     win = _window(result, window)
     vis = _visible(result.mesh.points, win)
     vmin, vmax = float(v[vis].min()), float(v[vis].max())
@@ -123,7 +125,7 @@ def field_figure(result, quantity: str = "total_head", window=None, title: str |
     with style():
         default = {"total_head": "Total head", "pressure_head": "Pressure head",
                    "pore_pressure": "Pore-water pressure"}[quantity]
-        fr = base.frame(win, title=title or default)
+        fr = base.frame(win, title=title or default, units=sec.units)
         ax = fr.ax
         tri = base.triangulation(result.mesh)
         cmap = field_cmap()
@@ -172,7 +174,9 @@ def _arrows(ax, result, win, columns: int = 28, key_at=(0.86, 1.035), key_coords
     ok = e >= 0
     if not ok.any():
         return []
-    V = result.velocity[e[ok]]
+    u = result.section.units
+    V = result.velocity[e[ok]] / u.factor("velocity")          # in the display unit (the file's)
+    vu = u.label("velocity")
     sp = np.linalg.norm(V, axis=1)
     vmax = float(sp.max())
     if vmax <= 0:
@@ -183,10 +187,10 @@ def _arrows(ax, result, win, columns: int = 28, key_at=(0.86, 1.035), key_coords
                   scale=vmax / (0.9 * d), width=0.0022, headwidth=3.5, headlength=4, headaxislength=3.5,
                   color=color, edgecolor=INK, linewidth=0.3 if color == "white" else 0, zorder=9, minlength=0.05,
                   pivot="mid")
-    ax.quiverkey(q, key_at[0], key_at[1], ref, f"{base.fmt_sci(ref)} m/s", labelpos="E", coordinates=key_coords,
+    ax.quiverkey(q, key_at[0], key_at[1], ref, f"{base.fmt_sci(ref)} {vu}", labelpos="E", coordinates=key_coords,
                  fontproperties={"size": 7}, color=INK)
     return [Line2D([], [], color=color, marker=r"$\rightarrow$", ms=9, mec=INK, mew=0.3 if color == "white" else 0,
-                   lw=0, label=f"Darcy velocity, linear scale (largest {base.fmt_sci(vmax, 2)} m/s)")]
+                   lw=0, label=f"Darcy velocity, linear scale (largest {base.fmt_sci(vmax, 2)} {vu})")]
 
 
 def flow_net_figure(result, window=None, title: str | None = None, n_drops: int | None = None,
@@ -201,7 +205,7 @@ def flow_net_figure(result, window=None, title: str | None = None, n_drops: int 
     net = net or flow_net(result, n_drops=n_drops)
     win = _window(result, window)
     with style():
-        fr = base.frame(win, title=title or "Flow net")
+        fr = base.frame(win, title=title or "Flow net", units=sec.units)
         ax = fr.ax
         colours = base.draw_zones(ax, sec, lighten=0.8)
         tri = base.triangulation(result.mesh)
@@ -217,25 +221,29 @@ def flow_net_figure(result, window=None, title: str | None = None, n_drops: int 
             drawn["flow_lines"] = ax.tricontour(tri, net.psi, levels=fl, colors=c_fl, linewidths=0.9, zorder=5)
         base.draw_zone_edges(ax, sec, colour=MUTED, lw=0.6, zorder=3)
         bh = base.draw_boundaries(ax, sec, window=win)
-        handles = [Line2D([], [], color=c_fl, lw=0.9, label=f"flow line (flow {base.fmt_sci(net.dpsi, 2)} "
-                          "m³/s per m between lines)"),
+        u = sec.units
+        fq, fl_u = u.factor("flow"), u.label("flow").replace("3", "³")
+        L_u = u.length
+        hl = u.from_si(net.head_loss, "length")
+        handles = [Line2D([], [], color=c_fl, lw=0.9, label=f"flow line (flow {base.fmt_sci(net.dpsi / fq, 2)} "
+                          f"{fl_u} between lines)"),
                    Line2D([], [], color=c_eq, lw=0.7, ls=(0, (5, 2)),
-                          label=f"equipotential (head drop {net.dh:.3g} m between lines)")]
+                          label=f"equipotential (head drop {u.from_si(net.dh, 'length'):.3g} {L_u} between lines)")]
         if show_phreatic:
             handles += _phreatic(ax, result)
         fr.legend(handles + bh, ncol=2)
         fr.legend(base.material_handles(sec, colours), ncol=2)
-        k_txt = base.fmt_sci(net.k_ref, 2)
+        k_txt = base.fmt_sci(net.k_ref / u.factor("conductivity"), 2)
         if net.squares:
-            txt = (f"Nf = {net.n_channels:.2f} flow channels,  Nd = {net.n_drops} head drops,  H = {net.head_loss:.3g} m,  "
-                   f"k = {k_txt} m/s ({net.reference_material})\n"
-                   f"q = k H Nf / Nd = {base.fmt_sci(net.k_ref * net.head_loss * net.shape_factor, 3)} m³/s per m;  "
-                   f"solver: {base.fmt_sci(net.q_solver, 3)} m³/s per m")
+            txt = (f"Nf = {net.n_channels:.2f} flow channels,  Nd = {net.n_drops} head drops,  H = {hl:.3g} {L_u},  "
+                   f"k = {k_txt} {u.conductivity} ({net.reference_material})\n"
+                   f"q = k H Nf / Nd = {base.fmt_sci(net.k_ref * net.head_loss * net.shape_factor / fq, 3)} {fl_u};  "
+                   f"solver: {base.fmt_sci(net.q_solver / fq, 3)} {fl_u}")
         else:
             txt = (f"Nf = {net.n_channels:.2f} channels of equal flow,  Nd = {net.n_drops} head drops,  "
-                   f"H = {net.head_loss:.3g} m (zones differ in k: channels of equal flow, not squares)\n"
-                   f"q = Nf x flow per channel = {base.fmt_sci(net.q_total, 3)} m³/s per m;  "
-                   f"solver: {base.fmt_sci(net.q_solver, 3)} m³/s per m")
+                   f"H = {hl:.3g} {L_u} (zones differ in k: channels of equal flow, not squares)\n"
+                   f"q = Nf x flow per channel = {base.fmt_sci(net.q_total / fq, 3)} {fl_u};  "
+                   f"solver: {base.fmt_sci(net.q_solver / fq, 3)} {fl_u}")
         fr.text(txt, fontsize=7.5, color=INK, linespacing=1.5)
     fr.fig.seepfe_flow_net = net
     fr.fig.seepfe_contours = drawn
@@ -248,7 +256,7 @@ def velocity_figure(result, window=None, title: str | None = None, columns: int 
     sec = result.section
     win = _window(result, window)
     with style():
-        fr = base.frame(win, title=title or "Darcy velocity")
+        fr = base.frame(win, title=title or "Darcy velocity", units=sec.units)
         ax = fr.ax
         colours = base.draw_zones(ax, sec, lighten=0.78)
         base.draw_zone_edges(ax, sec, colour=MUTED, lw=0.6, zorder=3)

@@ -51,13 +51,14 @@ def _arr(v, n, order):
 
 
 def exit_gradient_figure(profile, title: str | None = None, required_fs: float | None = None,
-                         fs_cap: float | None = None):
+                         fs_cap: float | None = None, units=None):
     """Two panels: exit gradients with critical and allowable lines; factors of safety.
 
     Parameters
     ----------
     profile : the object of ``result.exit_gradients(name)`` (see the module docstring).
     required_fs : the criterion used when the profile carries none (-), default 1.
+    units : seepfe.units.Units of the distance axis and labels (default m).
     fs_cap : upper limit of the factor-of-safety axis (default: 2.5 x the largest criterion, at least 3).
 
     The shaded stretches are returned on the figure as ``fig.seepfe_failing`` [(from, to), m].
@@ -156,6 +157,7 @@ def exit_gradient_figure(profile, title: str | None = None, required_fs: float |
             a2.text(d[-1], r, lab + " ", ha="right", va="bottom", fontsize=7, color=INK)
         a2.set_ylim(0, cap)
         a2.set_ylabel("factor of safety (-)")
+        from .base import length_axis
         last = a2
         if a3 is not None:
             a2.tick_params(labelbottom=False)
@@ -163,10 +165,11 @@ def exit_gradient_figure(profile, title: str | None = None, required_fs: float |
                             step=None, zorder=2)
             a3.plot(d, thick, color=OKABE_ITO["orange"], lw=1.0, zorder=3)
             a3.set_ylim(0, float(np.nanmax(thick)) * 1.25)
-            a3.set_ylabel("top stratum\nthickness (m)")
+            a3.set_ylabel(f"top stratum\nthickness ({length_axis(a3.yaxis, units)})")
             a3.invert_yaxis()                     # drawn down from the surface, as in a section
             last = a3
-        last.set_xlabel("distance from the landside toe (m)")
+        Lu = length_axis(last.xaxis, units)
+        last.set_xlabel(f"distance from the landside toe ({Lu})")
         if any(np.any(np.nan_to_num(v, nan=0.0) > cap) for v in shown):
             a2.text(0.005, 0.97, f"values above {cap:g} drawn at {cap:g}", transform=a2.transAxes, ha="left",
                     va="top", fontsize=6.5, color=MUTED)
@@ -177,11 +180,13 @@ def exit_gradient_figure(profile, title: str | None = None, required_fs: float |
         if np.isfinite(fz).any():
             k = int(np.argmin(fz))
             a2.plot([d[k]], [min(fs[k], cap)], marker="o", ms=4.5, color=red, zorder=5)
-            a2.annotate(f"least {fs[k]:.2f} at {d[k]:.1f} m", (d[k], min(fs[k], cap)), xytext=(6, -10),
+            fL = 1.0 if units is None else units.factor("length")
+            a2.annotate(f"least {fs[k]:.2f} at {d[k] / fL:.1f} {Lu}", (d[k], min(fs[k], cap)), xytext=(6, -10),
                         textcoords="offset points", fontsize=7, color=red)
         if stretches:
             tot = sum(b - a for a, b in stretches)
-            handles.append(Patch(color=shade, label=f"fails the criteria ({tot:.1f} m in all)"))
+            fL = 1.0 if units is None else units.factor("length")
+            handles.append(Patch(color=shade, label=f"fails the criteria ({tot / fL:.1f} {Lu} in all)"))
         yl = 0.135 if a3 is not None else 0.165
         fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.1, yl), ncol=2, borderaxespad=0.0,
                    columnspacing=1.6)

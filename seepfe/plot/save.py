@@ -56,26 +56,35 @@ def figure_set(result, show_mesh: bool = False, arrows: bool = False, quantity: 
     dw = base.detail_window(sec) if detail else None
     if dw is not None:
         windows.append(("_detail", dw))
+    # the plan first (name, caption, how to draw), so the log can say "figure i of N"; drawn one at a time
+    plan = []
+    lab = {"pore_pressure": "Pore-water pressure", "pressure_head": "Pressure head"}[quantity]
     for suffix, win in windows:
         what = " (closer view)" if suffix else ""
-        yield FigureItem("section" + suffix, "The section: zones by material, boundaries by kind and value" + what,
-                         section_figure(sec, result.mesh, window=win, title=(sec.title or "Section") + what))
+        plan.append(("section" + suffix, "The section: zones by material, boundaries by kind and value" + what,
+                     lambda win=win, what=what: section_figure(sec, result.mesh, window=win,
+                                                               title=(sec.title or "Section") + what)))
         if show_mesh:
-            yield FigureItem("mesh" + suffix, "The finite-element mesh" + what,
-                             section_figure(sec, result.mesh, window=win, show_mesh=True, title="Mesh" + what))
-        yield FigureItem("total_head" + suffix, "Total head, contours at round intervals, with the phreatic "
-                         "surface" + what, field_figure(result, "total_head", window=win, title="Total head" + what))
-        lab = {"pore_pressure": "Pore-water pressure", "pressure_head": "Pressure head"}[quantity]
-        yield FigureItem(quantity + suffix, lab + what, field_figure(result, quantity, window=win,
-                                                                     title=lab + what))
-        yield FigureItem("flownet" + suffix, "Flow net: equipotentials and flow lines of equal flow" + what,
-                         flow_net_figure(result, window=win, net=net, title="Flow net" + what))
+            plan.append(("mesh" + suffix, "The finite-element mesh" + what,
+                         lambda win=win, what=what: section_figure(sec, result.mesh, window=win, show_mesh=True,
+                                                                   title="Mesh" + what)))
+        plan.append(("total_head" + suffix, "Total head, contours at round intervals, with the phreatic surface" + what,
+                     lambda win=win, what=what: field_figure(result, "total_head", window=win,
+                                                             title="Total head" + what)))
+        plan.append((quantity + suffix, lab + what,
+                     lambda win=win, what=what: field_figure(result, quantity, window=win, title=lab + what)))
+        plan.append(("flownet" + suffix, "Flow net: equipotentials and flow lines of equal flow" + what,
+                     lambda win=win, what=what: flow_net_figure(result, window=win, net=net, title="Flow net" + what)))
         if arrows:
-            yield FigureItem("velocity" + suffix, "Darcy velocity arrows (linear scale)" + what,
-                             velocity_figure(result, window=win, title="Darcy velocity" + what))
+            plan.append(("velocity" + suffix, "Darcy velocity arrows (linear scale)" + what,
+                         lambda win=win, what=what: velocity_figure(result, window=win, title="Darcy velocity" + what)))
     for name, prof in analysis.exits.items():
         if len(prof.x) < 2:
             continue
         safe = "".join(c if c.isalnum() or c in "-_" else "_" for c in name)
-        yield FigureItem(f"exit_gradient_{safe}", f"Exit gradients and factor of safety along '{name}'",
-                         exit_gradient_figure(prof, title=f"Exit gradients along '{name}'"))
+        plan.append((f"exit_gradient_{safe}", f"Exit gradients and factor of safety along '{name}'",
+                     lambda prof=prof, name=name: exit_gradient_figure(prof, title=f"Exit gradients along '{name}'",
+                                                                       units=sec.units)))
+    for i, (fname, caption, draw) in enumerate(plan, 1):
+        log.info("figure %d of %d: %s", i, len(plan), fname)
+        yield FigureItem(fname, caption, draw())

@@ -16,6 +16,7 @@ cases whose resolved input changed.
 from __future__ import annotations
 
 import math
+import os
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -31,9 +32,9 @@ from ..section import load_section
 from .case import case_hash, from_json_float
 from .fragility import material_overrides, probabilities, sample_conductivities
 from .runner import Runner
-from .spec import SweepSpec, expand_cases, load_sweep
+from .spec import SweepSpec, expand_cases, load_sweep, sweep_units, to_file_units
 from .target import Stopped, quantity_of, search
-from .values import infer_unit, unit_suffix, with_values
+from .values import unit_and_factor, unit_suffix, with_values
 
 __all__ = ["run_sweep", "SweepReport", "MARKER"]
 
@@ -123,16 +124,23 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
     sec = load_section(section)
     data, label = sec.data, sec.source
     spec, slabel = load_sweep(sweep)
-    sopts = {k: v for k, v in {**spec.solve.model_dump(), **(solve or {})}.items() if v is not None}
+    fu = sec.units
+    su = sweep_units(spec, fu, slabel)
+    # the sweep's element size and probe points in SI (solve options given in Python are SI already)
+    sopts = {k: v for k, v in spec.solve.model_dump().items() if v is not None}
+    if "size" in sopts:
+        sopts["size"] = su.to_si(sopts["size"], "length")
+    sopts = {**sopts, **{k: v for k, v in (solve or {}).items() if v is not None}}
     if spec.exit is not None:
         for nm in spec.exit:
             if nm not in sec.boundary_names:
                 raise SeepfeError(f"{slabel}: exit: no boundary named '{nm}' in {label} "
                                   f"(known: {', '.join(sec.boundary_names)})")
-    points = {k: [float(v[0]), float(v[1])] for k, v in spec.points.items()}
+    points = {k: [su.to_si(float(v[0]), "length"), su.to_si(float(v[1]), "length")] for k, v in spec.points.items()}
     for k, p in points.items():
         if not sec.outline.buffer(sec.length_tol).contains(Point(p)):
-            raise SeepfeError(f"{slabel}: points.{k}: ({p[0]:g}, {p[1]:g}) m is outside the section")
+            v = spec.points[k]
+            raise SeepfeError(f"{slabel}: points.{k}: ({v[0]:g}, {v[1]:g}) {su.length} is outside the section")
     crit = sec.spec.checks.criteria
     fs_required = spec.criterion.fs if spec.criterion.fs is not None else max(crit.fs_heave, crit.fs_uplift)
     criteria = None if spec.criterion.fs is None else {"fs_heave": spec.criterion.fs, "fs_uplift": spec.criterion.fs}
@@ -199,18 +207,24 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
 
         # ------------------------------------------------------------ targets
         width = runner.workers if scheduler is None and runner.scheduler is None else max(2, workers or 2)
+        fixed = to_file_units(data, spec.fixed, su, slabel)
         for t in spec.targets:
             tname = t.name or t.parameter
-            unit = t.unit or infer_unit(data, t.parameter)
+            try:
+                unit, tf = unit_and_factor(data, t.parameter, t.unit, su, fu, slabel)
+                tfixed = to_file_units(data, t.fixed, su, slabel)
+            except SeepfeError as e:
+                raise SeepfeError(f"{e} (target '{tname}')") from None
             if unit is None:
                 raise SeepfeError(f"{slabel}: target '{tname}': cannot tell the unit of '{t.parameter}'; "
                                   "add \"unit\"")
 
-            def evaluate(xs, t=t, tname=tname):
+            def evaluate(xs, t=t, tname=tname, tf=tf, tfixed=tfixed):
                 pls = []
                 for x in xs:
                     try:
-                        pls.append(payload(with_values(data, {**spec.fixed, **t.fixed, t.parameter: float(x)}, label)))
+                        pls.append(payload(with_values(data, {**fixed, **tfixed, t.parameter: float(x) * tf},
+                                                       label)))
                     except SeepfeError as e:
                         raise SeepfeError(f"{slabel}: target '{tname}': {e}") from None
                 recs = run(f"target {tname}", pls)
@@ -224,9 +238,11 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
         if spec.fragility is not None:
             fr = spec.fragility
             crit = fr.criterion if fr.criterion is not None else fs_required
-            mats, K = sample_conductivities(fr, data, slabel)
+            kf = su.factor("conductivity") / fu.factor("conductivity")
+            mats, K = sample_conductivities(fr, data, slabel, median_factor=kf)     # K in the file's unit
             stages = fr.stages.array()
-            sunit = fr.stages.unit or infer_unit(data, fr.stage)
+            sunit, sf = unit_and_factor(data, fr.stage, fr.stages.unit, su, fu, slabel)
+            ffixed = to_file_units(data, fr.fixed, su, slabel)
             if sunit is None:
                 raise SeepfeError(f"{slabel}: fragility.stages: cannot tell the unit of '{fr.stage}'; add \"unit\"")
             pls = []
@@ -236,7 +252,7 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
                     kov.update(material_overrides(data, m, K[s, j]))
                 for st in stages:
                     try:
-                        d = with_values(data, {**spec.fixed, **fr.fixed, **kov, fr.stage: float(st)}, label)
+                        d = with_values(data, {**fixed, **ffixed, **kov, fr.stage: float(st) * sf}, label)
                     except SeepfeError as e:
                         raise SeepfeError(f"{slabel}: fragility: {e}") from None
                     pls.append(payload(d))
@@ -252,7 +268,8 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
                 Q[idx // len(stages), idx % len(stages)] = quantity_of(r, fr.quantity)
             probs = probabilities(Q, crit, fr.confidence, fr.interval)
             rep.fragility = {"stage": fr.stage, "stage_unit": sunit, "stages": stages.tolist(),
-                             "materials": mats, "k_m_s": K.tolist(), "quantity": fr.quantity, "values": Q,
+                             "materials": mats, "k_m_s": (K * fu.factor("conductivity")).tolist(),
+                             "k_unit": fu.conductivity, "k": K.tolist(), "quantity": fr.quantity, "values": Q,
                              "criterion": crit, "probabilities": probs, "samples": fr.samples,
                              "sampling": fr.sampling, "seed": fr.seed, "interval": fr.interval,
                              "confidence": fr.confidence, "failed_cases": errors}
@@ -265,12 +282,27 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
                      "(what seepfe solve prints for the same input)")
     rep.wall_s = time.perf_counter() - t0
     if rep.complete and out is not None:
-        _write(rep, out, spec, slabel, sec, sopts, points, columns if spec.vary else {}, profiles, plots)
+        _write(rep, out, spec, slabel, sec, sopts, points, columns if spec.vary else {}, profiles, plots, sweep)
     return rep
 
 
+def _with_display_columns(columns: list, rows: list, units) -> tuple[list, list]:
+    """The table's SI result columns again in the section file's units, appended (the rows are copied)."""
+    from ..units import display_columns
+    if units.is_si or not rows:
+        return columns, rows
+    numeric = {c: np.array([r.get(c) for r in rows], float) for c in columns
+               if c not in ("case",) and all(isinstance(r.get(c), (int, float)) and not isinstance(r.get(c), bool)
+                                             for r in rows)}
+    extra = {k: v for k, v in display_columns(numeric, units).items() if k not in numeric}
+    if not extra:
+        return columns, rows
+    out = [{**r, **{k: float(v[i]) for k, v in extra.items()}} for i, r in enumerate(rows)]
+    return columns + list(extra), out
+
+
 def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts, points, columns, profiles,
-           plots: bool) -> None:
+           plots: bool, sweep_src=None) -> None:
     from ..about import __version__
     from ..output import atomic_dir, write_json
     from . import report
@@ -278,7 +310,8 @@ def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts
     files: list[str] = []
     with atomic_dir(out / "results") as tmp:
         if rep.table:
-            report.write_table(tmp / "table.csv", rep.columns, rep.table)
+            cols, rows = _with_display_columns(rep.columns, rep.table, sec.units)
+            report.write_table(tmp / "table.csv", cols, rows)
             files.append("table.csv")
             if plots:
                 results = [c for c in rep.columns if c.startswith(("flow_", "head_"))]
@@ -314,9 +347,12 @@ def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts
             report.write_table(tmp / "fragility.csv", cols, rows)
             srows = []
             kcols = [f"k_{m}_m_s" for m in fr["materials"]]
-            for s, ks in enumerate(fr["k_m_s"]):
+            if fr["k_unit"] != "m/s":           # also in the section file's unit
+                kcols += [f"k_{m}_{unit_suffix(fr['k_unit'])}" for m in fr["materials"]]
+            for s, (ks, kf) in enumerate(zip(fr["k_m_s"], fr["k"])):
+                kv = list(ks) + (list(kf) if fr["k_unit"] != "m/s" else [])
                 for j, st in enumerate(fr["stages"]):
-                    srows.append({"sample": s, **dict(zip(kcols, ks)), scol: st, fr["quantity"]: fr["values"][s, j]})
+                    srows.append({"sample": s, **dict(zip(kcols, kv)), scol: st, fr["quantity"]: fr["values"][s, j]})
             report.write_table(tmp / "fragility_samples.csv", ["sample"] + kcols + [scol, fr["quantity"]], srows)
             files += ["fragility.csv", "fragility_samples.csv"]
             if plots:
@@ -333,6 +369,9 @@ def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts
                                                                       "default rule of seepfe.analyse)",
             "fs_required": rep.fs_required, "fs_method": rep.fs_method,
             "units": dict(UNITS),
+            "file_units": {"sweep": sweep_units(spec, sec.units, slabel).as_dict(), "section": sec.units.as_dict(),
+                           "note": "the parameter columns are in the sweep's units, as their names say; "
+                                   "results are SI"},
             "cases": rep.cases, "solved_this_run": rep.solved, "from_cache": rep.cached, "backend": rep.backend,
             "wall_s": round(rep.wall_s, 3),
             "targets": [{k: v for k, v in t.items()} for t in rep.targets],
@@ -341,6 +380,9 @@ def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts
             "note": "cases/ beside this folder caches every finished case by the sha256 of its resolved input; "
                     "delete it to force a full rerun.",
         }
+        from ..export import copy_inputs
+        sname = Path(sweep_src).name if isinstance(sweep_src, (str, os.PathLike)) else "sweep.json"
+        meta["files"] += copy_inputs(tmp, sec, {sname: sweep_src if sweep_src is not None else {}})
         write_json(tmp / "sweep.json", meta)
         files.append("sweep.json")
     rep.results_dir = out / "results"

@@ -36,8 +36,11 @@ def _num(data, key):
     return float(v) if isinstance(v, (int, float)) and not isinstance(v, bool) else None
 
 
-def sample_conductivities(spec: FragilitySpec, data: dict, label: str = "<sweep>") -> tuple[list[str], np.ndarray]:
-    """Sampled conductivities: (material names, (S, M) array of k in m/s; kx for anisotropic materials)."""
+def sample_conductivities(spec: FragilitySpec, data: dict, label: str = "<sweep>",
+                          median_factor: float = 1.0) -> tuple[list[str], np.ndarray]:
+    """Sampled conductivities: (material names, (S, M) array of k in the section file's unit (m/s by
+    default); kx for anisotropic materials). ``median_factor`` turns a given ``median`` (the sweep's
+    unit) into the section file's unit."""
     mats = list(spec.conductivity)
     S, M = spec.samples, len(mats)
     medians = np.empty(M)
@@ -45,7 +48,9 @@ def sample_conductivities(spec: FragilitySpec, data: dict, label: str = "<sweep>
         if m not in (data.get("materials") or {}):
             raise SectionError(f"{label}: fragility.conductivity: no material named '{m}' in the section")
         med = spec.conductivity[m].median
-        if med is None:
+        if med is not None:
+            med = med * median_factor
+        else:
             med = _num(data, f"materials.{m}.k")
             if med is None:
                 med = _num(data, f"materials.{m}.kx")

@@ -10,7 +10,10 @@ A sweep file is JSON (see ``docs/sweeps.md``)::
      "criterion": {"fs": 1.5},
      "targets": [...], "fragility": {...}}
 
-Units follow the section file (m, m/s, kN/m3).
+Numbers are in the section file's units (its ``"units"``, SI by default) unless the sweep file has
+its own ``"units"`` key; then they are converted to the section file's units before they are applied
+(and the section's loader turns everything into SI). The unit of a varied key is inferred from the
+schema's dimension markers (``seepfe.units``) or given by the entry's ``"unit"``.
 """
 
 from __future__ import annotations
@@ -26,10 +29,11 @@ import numpy as np
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from ..errors import SectionError
-from .values import get_value, infer_unit, unit_suffix, with_values
+from ..units import SI, Dim, Units, parse_units
+from .values import get_value, unit_and_factor, unit_suffix, with_values
 
 __all__ = ["SweepSpec", "RangeSpec", "TargetSpec", "FragilitySpec", "load_sweep", "values_of", "Case",
-           "expand_cases", "column_of"]
+           "expand_cases", "column_of", "sweep_units", "to_file_units"]
 
 
 def _finite(v: float) -> float:
@@ -39,6 +43,7 @@ def _finite(v: float) -> float:
 
 
 Finite = Annotated[float, AfterValidator(_finite)]
+Length = Annotated[Finite, Dim("length")]
 _CFG = ConfigDict(extra="forbid", frozen=True)
 
 
@@ -93,7 +98,7 @@ class SolveSpec(BaseModel):
 
     model_config = _CFG
     order: Optional[Literal[1, 2]] = None
-    size: Optional[Annotated[float, Field(gt=0)]] = Field(None, description="element size, m")
+    size: Optional[Annotated[float, Field(gt=0), Dim("length")]] = Field(None, description="element size, m")
     linear: Optional[Literal["auto", "direct", "amg"]] = None
 
 
@@ -137,7 +142,7 @@ class TargetSpec(BaseModel):
 class LognormalSpec(BaseModel):
     model_config = _CFG
     cov: Annotated[float, Field(ge=0, le=20)] = Field(description="coefficient of variation of k (-)")
-    median: Optional[Annotated[float, Field(gt=0)]] = Field(
+    median: Optional[Annotated[float, Field(gt=0), Dim("conductivity")]] = Field(
         None, description="median k, m/s (default: the section's value; kx for anisotropic, ky keeps its ratio)")
 
 
@@ -175,13 +180,17 @@ class SweepSpec(BaseModel):
     """A whole sweep file."""
 
     model_config = ConfigDict(extra="forbid", frozen=True)
+    schema_: Optional[str] = Field(None, alias="$schema", description="address of the JSON Schema (ignored)")
+    units: Optional[Union[str, dict[str, str]]] = Field(
+        None, description="units of the sweep's numbers (default: the section file's units)")
     title: str = ""
     mode: Literal["one_at_a_time", "grid"] = "one_at_a_time"
     vary: dict[str, Union[list[Finite], RangeSpec]] = Field(default_factory=dict)
     fixed: dict[str, Union[Finite, str, bool]] = Field(default_factory=dict,
                                                        description="values applied to every case")
     solve: SolveSpec = Field(default_factory=SolveSpec)
-    points: dict[str, Annotated[list[Finite], Field(min_length=2, max_length=2)]] = Field(default_factory=dict)
+    points: dict[str, Annotated[list[Length], Field(min_length=2, max_length=2)]] = Field(
+        default_factory=dict, description="probe points [x, y], m: total head reported at each")
     exit: Optional[list[str]] = Field(None, description="boundaries where exit gradients are checked "
                                                         "(default: every seepage face and drain)")
     criterion: CriterionSpec = Field(default_factory=CriterionSpec)
@@ -222,9 +231,24 @@ def load_sweep(path_or_dict) -> tuple[SweepSpec, str]:
         if not isinstance(data, dict):
             raise SectionError(f"{label}: the top level must be a JSON object {{...}}")
     try:
-        return SweepSpec.model_validate(data), label
+        spec = SweepSpec.model_validate(data)
     except ValidationError as e:
         raise SectionError(_format(e, label)) from None
+    if spec.units is not None:
+        parse_units(spec.units, label)
+    return spec, label
+
+
+def sweep_units(spec: SweepSpec, file_units: Units = SI, label: str = "<sweep>") -> Units:
+    """The units the sweep's numbers are in: its own ``"units"``, else the section file's."""
+    return file_units if spec.units is None else parse_units(spec.units, label)
+
+
+def _units_of(data: dict) -> Units:
+    try:
+        return parse_units(data.get("units"))
+    except SectionError:
+        return SI
 
 
 def values_of(v) -> np.ndarray:
@@ -235,13 +259,26 @@ def _unit_of(v) -> Optional[str]:
     return None if isinstance(v, list) else v.unit
 
 
-def column_of(data: dict, key: str, unit: Optional[str], label: str) -> str:
-    """Table column of a varied key, unit included: 'boundaries.river.head_m'."""
-    u = unit or infer_unit(data, key)
+def column_of(data: dict, key: str, unit: Optional[str], label: str, units: Optional[Units] = None) -> str:
+    """Table column of a varied key, unit included: 'boundaries.river.head_m' (``units``: the sweep's)."""
+    fu = _units_of(data)
+    u, _ = unit_and_factor(data, key, unit, units or fu, fu, label)
     if u is None:
         raise SectionError(f"{label}: '{key}': cannot tell its unit; add \"unit\": \"m\" (or \"-\") "
                            "to its entry")
     return f"{key}_{unit_suffix(u)}"
+
+
+def to_file_units(data: dict, values: dict, units: Units, label: str, explicit: Optional[dict] = None) -> dict:
+    """{key: value} from the sweep's units to the section file's (numbers only; text and booleans kept)."""
+    fu = _units_of(data)
+    out = {}
+    for k, v in values.items():
+        if isinstance(v, (int, float)) and not isinstance(v, bool):
+            _, f = unit_and_factor(data, k, (explicit or {}).get(k), units, fu, label)
+            v = float(v) * f if f != 1.0 else v
+        out[k] = v
+    return out
 
 
 @dataclass(frozen=True)
@@ -260,16 +297,23 @@ def _plain(x: float):
 
 
 def expand_cases(spec: SweepSpec, data: dict, label: str) -> tuple[list[Case], dict[str, str]]:
-    """The cases of the 'vary' block, resolved into section dicts, and {key: column name}."""
+    """The cases of the 'vary' block, resolved into section dicts, and {key: column name}.
+
+    The table shows the values as the sweep writes them (its units); the section gets them in its own.
+    """
     keys = list(spec.vary)
-    columns = {k: column_of(data, k, _unit_of(spec.vary[k]), label) for k in keys}
+    su = sweep_units(spec, _units_of(data), label)
+    columns = {k: column_of(data, k, _unit_of(spec.vary[k]), label, su) for k in keys}
+    explicit = {k: _unit_of(spec.vary[k]) for k in keys}
+    fixed = to_file_units(data, spec.fixed, su, label)
     base = {}
     for k in keys:
         try:
             b = get_value(data, k)
         except SectionError as e:
             raise SectionError(f"{label}: vary {e}") from None
-        base[k] = float(b) if isinstance(b, (int, float)) and not isinstance(b, bool) else float("nan")
+        _, f = unit_and_factor(data, k, explicit[k], su, _units_of(data), label)
+        base[k] = float(b) / f if isinstance(b, (int, float)) and not isinstance(b, bool) else float("nan")
     combos: list[tuple[str, dict, dict]] = []      # (varied, overrides, shown)
     if spec.mode == "grid":
         arrays = [values_of(spec.vary[k]) for k in keys]
@@ -283,7 +327,7 @@ def expand_cases(spec: SweepSpec, data: dict, label: str) -> tuple[list[Case], d
     cases = []
     for i, (varied, ov, shown) in enumerate(combos):
         try:
-            sec = with_values(data, {**spec.fixed, **ov}, label)
+            sec = with_values(data, {**fixed, **to_file_units(data, ov, su, label, explicit)}, label)
         except SectionError as e:
             raise SectionError(f"{label}: vary: {e}") from None
         cases.append(Case(index=i, varied=varied, params=shown, section=sec))
