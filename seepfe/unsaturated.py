@@ -29,7 +29,8 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-from . import fem, linsolve, nested
+from . import bcs, fem, linsolve, nested
+from .bcs import conditions
 from .errors import SolverError
 
 __all__ = ["KrModel", "UnconfinedSolution", "solve_unconfined", "saturated_start", "is_partly_dry", "DELTA_FACTOR",
@@ -50,8 +51,14 @@ STAGE_START, STAGE_RATIO, STAGE_TOL, STAGE_MAX = 0.05, 4.0, 1e-2, 4
 #: elevations.  Round-off floor = FLOOR_C x EPS x sum_free (|K(h)| |h|) / Q (grows with the contrast).
 EPS = float(np.finfo(float).eps)
 FLOOR_C, FLOW_TOL, FLOOR_MAX, HTOL = 4.0, 1e-7, 1e-6, 1e-6
-#: no new best residual in this many iterations (after the continuation) ends the iteration as stalled
-STALL_ITERATIONS = 8
+#: iteration budget that follows progress (after the continuation): the iteration ends as stalled when its best
+#: flow residual has not fallen by STALL_PROGRESS over the last W = max(STALL_MIN, STALL_FRACTION x iterations
+#: so far) iterations; solver.max_iterations stays the hard cap
+STALL_MIN, STALL_FRACTION, STALL_PROGRESS = 10, 0.3, 2.0
+#: backtracking line search: at most this many halvings of a step before the next candidate direction
+LINE_SEARCH_CUTS = 6
+#: the line search accepts a step against the largest of this many recent residual norms (non-monotone)
+NONMONOTONE = 4
 #: mesh sequencing: coarse levels stop above COARSEST_NODES nodes and are solved to COARSE_RTOL
 COARSEST_NODES, COARSE_RTOL = 1500, 1e-6
 #: inexact Newton: GMRES (rows scaled by their 1-norm) to KRYLOV_RTOL with the LU of an earlier Jacobian as
@@ -108,11 +115,14 @@ class KrModel:
         delta = DELTA_FACTOR * size / mesh.order
         return cls(vg=vg, alpha=alpha, n=n, kr_min=kmin, delta=delta, zone=mesh.zone)
 
-    def __call__(self, psi: np.ndarray, derivative: bool = True):
-        """kr and dkr/dpsi (1/m) at psi (E, S) in m, for each element's zone."""
-        z = self.zone
+    def __call__(self, psi: np.ndarray, derivative: bool = True, elements=None):
+        """kr and dkr/dpsi (1/m) at psi (E', S) in m, for each element's zone.
+
+        elements : (E',) indices of the elements whose samples psi holds (default: all, in order)."""
+        z = self.zone if elements is None else self.zone[elements]
+        delta = self.delta if elements is None else self.delta[elements]
         kmin = self.kr_min[z][:, None]
-        d = self.stretch * self.delta[:, None]
+        d = self.stretch * delta[:, None]
         s = np.minimum(psi, 0.0) / d
         ex = np.exp(s)
         kr = kmin + (1.0 - kmin) * (1.0 - s) * ex          # C1 at psi = 0: kr = 1, dkr/dpsi = 0
@@ -121,17 +131,16 @@ class KrModel:
             rows = np.flatnonzero(self.vg[z])
             if len(rows):
                 p = psi[rows]
-                kv = self._vgm(p, rows)
-                kr[rows] = kv
+                zr = z[rows]
+                kr[rows] = self._vgm(p, zr)
                 if derivative:
                     eps = 1e-7 * (1.0 + np.abs(p))
-                    dk[rows] = np.where(p < 0.0, (self._vgm(np.minimum(p + eps, 0.0), rows)
-                                                  - self._vgm(p - eps, rows))
+                    dk[rows] = np.where(p < 0.0, (self._vgm(np.minimum(p + eps, 0.0), zr)
+                                                  - self._vgm(p - eps, zr))
                                         / (np.minimum(p + eps, 0.0) - (p - eps)), 0.0)
         return kr, dk
 
-    def _vgm(self, p, rows):
-        z = self.zone[rows]
+    def _vgm(self, p, z):
         a, n, kmin = self.alpha[z][:, None], self.n[z][:, None], self.kr_min[z][:, None]
         m = 1.0 - 1.0 / n
         se = (1.0 + (a * np.maximum(-p, 0.0)) ** n) ** (-m)
@@ -173,17 +182,30 @@ class _System:
         xi = _sample_points(SAMPLES_PER_SIDE)
         self.N = fem.shape(mesh.order, xi)                    # (S, nloc)
         self.w = np.full(len(xi), 1.0 / len(xi))
-        self.ys = mesh.points[c, 1] @ self.N.T                 # (E, S) elevation at the samples, m
+        # psi at a sample is sum_i N_i psi_i with sum_i N_i = 1, so it is at least
+        # min psi_i - neg (max psi_i - min psi_i), neg = largest sum of the negative N_i over the samples
+        # (0 for P1): an element whose bound is >= 0 is fully wet (kr = 1, no derivative) and is skipped
+        self.neg = float(np.max(-np.minimum(self.N, 0.0).sum(axis=1)))
+        self.y_cells = mesh.points[c, 1]                       # (E, nloc) elevation of the nodes, m
+        self.partly_dry = 0                                    # elements sampled at the last call
 
     def matrix(self, data: np.ndarray) -> sp.csr_matrix:
         return sp.csr_matrix((data, self.indices, self.indptr), shape=(self.n, self.n))
 
     def kr(self, h: np.ndarray, derivative: bool = True):
-        """Element kr (E,) and d kr_e / d h_local (E, nloc)."""
-        psi = h[self.mesh.cells] @ self.N.T - self.ys
-        k, dk = self.model(psi, derivative)
-        kr_e = k @ self.w
-        dkr = (dk * self.w) @ self.N if derivative else None
+        """Element kr (E,) and d kr_e / d h_local (E, nloc); only partly dry elements are sampled."""
+        psin = h[self.mesh.cells] - self.y_cells             # nodal pressure head (E, nloc), m
+        lo, hi = psin.min(axis=1), psin.max(axis=1)
+        rows = np.flatnonzero(lo - self.neg * (hi - lo) < 0.0)
+        self.partly_dry = len(rows)
+        E, nl = psin.shape
+        kr_e = np.ones(E)
+        dkr = np.zeros((E, nl)) if derivative else None
+        if len(rows):
+            k, dk = self.model(psin[rows] @ self.N.T, derivative, rows)
+            kr_e[rows] = k @ self.w
+            if derivative:
+                dkr[rows] = (dk * self.w) @ self.N
         return kr_e, dkr
 
     def assemble(self, kr_e: np.ndarray) -> sp.csr_matrix:
@@ -210,16 +232,24 @@ def is_partly_dry(mesh, h: np.ndarray, tol: float) -> bool:
     return bool(psi.min() < -tol) or bool((h - mesh.points[:, 1]).min() < -tol)
 
 
+def _hierarchy(mesh):
+    """Levels for mesh sequencing: only meshes made by splits have them (a coarser mesh of the same order
+    first).  An unsplit P2 mesh is solved on itself: starting it from P1 on the same triangles stalled on
+    locally refined meshes (drain ends refined to 1/1000 of the height, tests/test_unconfined_corpus.py)."""
+    if mesh.stats.get("splits", 0) < 1:
+        return [(mesh, None)]
+    return nested.hierarchy(mesh, min_nodes=COARSEST_NODES)
+
+
 def saturated_start(section, mesh, linear: str = "direct", tol: float = 1e-10):
     """The first saturated solve on the coarsest nested level of a split mesh (costs a fraction of the fine one).
 
     Returns (hierarchy, h, face, solver_cache) when the mesh has coarse levels and the saturated head field of
     the coarsest level is partly dry (the unconfined solve starts from it there), else None (the caller makes
     the saturated solve on the given mesh, which decides as before)."""
-    hier = nested.hierarchy(mesh, min_nodes=COARSEST_NODES)
+    hier = _hierarchy(mesh)
     if len(hier) < 2:
         return None
-    from .solver import _solve_fixed, conditions          # solver imports this module
     m = hier[-1][0]
     try:
         b = conditions(section, m)
@@ -228,11 +258,9 @@ def saturated_start(section, mesh, linear: str = "direct", tol: float = 1e-10):
     ke = fem.element_matrices(m.points, m.cells, section.zone_tensors()[m.zone], m.order)
     A = fem.assemble(m.cells, ke, m.n_nodes)
     y = m.points[:, 1]
-    fixed = np.concatenate([b.head_nodes, b.face_nodes[b.face_start]])
-    values = np.concatenate([b.head_values, y[b.face_nodes[b.face_start]]])
-    o = np.argsort(fixed)
+    fixed, values = bcs.fixed_set(b, b.face_start, y)
     cache: dict = {}
-    h = _solve_fixed(A, b.load, fixed[o], values[o], linear, tol, cache)
+    h = bcs.solve_fixed(A, b.load, fixed, values, linear, tol, cache)
     if not is_partly_dry(m, h, 10 * section.tol):
         return None
     return hier, h, b.face_start.copy(), cache
@@ -306,7 +334,7 @@ class _Level:
 def _levels(section, mesh, Ke, bc, sequencing: bool, hier=None) -> list:
     """The levels of the solve, coarsest first (just the given mesh without sequencing)."""
     if hier is None:
-        hier = nested.hierarchy(mesh, min_nodes=COARSEST_NODES) if sequencing else [(mesh, None)]
+        hier = _hierarchy(mesh) if sequencing else [(mesh, None)]
     hier = list(hier)
     out = []
     Kz = section.zone_tensors()
@@ -314,7 +342,6 @@ def _levels(section, mesh, Ke, bc, sequencing: bool, hier=None) -> list:
         if i == 0:
             ke, b = Ke, bc
         else:
-            from .solver import conditions          # solver imports this module
             try:
                 b = conditions(section, m)
             except SolverError:                      # a coarse level without a head node: stop there
@@ -364,16 +391,13 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
     h = h.copy()
     history: list[float] = []
     best = None
+    best_log: list[float] = []          # best residual at each iteration with the final kr (stall rule)
     stage_it, omega, prev_norm = 0, 0.7, np.inf
     lu = None
     reason, converged, rel, floor = "", False, np.inf, 0.0
     changes: list[int] = []
-
-    def fixed_set(face):
-        fixed = np.concatenate([bc.head_nodes, fn[face]])
-        values = np.concatenate([bc.head_values, y[fn[face]]])
-        o = np.argsort(fixed)
-        return fixed[o], values[o]
+    stalled = False
+    recent_norms: list[float] = []
 
     def residual(h):
         kr_e, dkr = sysm.kr(h, derivative=(method == "newton"))
@@ -387,9 +411,23 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
         fl = FLOOR_C * EPS * (sysm.matrix(np.abs(A.data)) @ np.abs(h))[free].sum() / Q
         return rel, fl
 
+    def picard_step(A, h, free_mask, fixed):
+        """Correction to the solution of K(h) x = f with the current kr (symmetric positive definite)."""
+        ta = time.perf_counter()
+        fi = np.flatnonzero(free_mask)
+        Af = A[fi]
+        f, _ = linsolve.spd_factor(Af[:, fi])
+        stats["factorizations"] += 1
+        stats["picard_steps"] += 1
+        stats["factor_s"] += time.perf_counter() - ta
+        x = h.copy()
+        x[fi] = f.solve(bc.load[fi] - Af[:, fixed] @ h[fixed])
+        stats["linear_solves"] += 1
+        return x - h
+
     it = 0
     for it in range(1, budget + 1):
-        fixed, values = fixed_set(face)
+        fixed, values = bcs.fixed_set(bc, face, y)
         h[fixed] = values
         free_mask = np.ones(n, bool)
         free_mask[fixed] = False
@@ -399,13 +437,8 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
         if model.stretch == 1.0 and (best is None or rel < best[0]):
             best = (rel, h.copy(), A, kr_e, face.copy(), floor, it)
         # active set of the seepage faces and drains, updated with the current iterate
-        if len(fn):
-            scale = max(np.abs(r[bc.head_nodes]).max(), 1e-300)
-            release = face & (r[fn] > 1e-9 * scale)              # inflow at an outflow point
-            catch = ~face & (h[fn] > y[fn] + htol)              # head above the outlet, no outflow yet
-            changed = bool(release.any() or catch.any())
-        else:
-            changed = False
+        new_face, release, catch = bcs.update_active(bc, face, r, h, y, htol)
+        changed = bool(release.any() or catch.any())
         changes.append(int(changed))
         if model.stretch > 1.0 and (rel < STAGE_TOL or stage_it >= STAGE_MAX) and not changed:
             # continuation: narrow the transition of the default kr and go on from this iterate
@@ -421,9 +454,9 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
             break
         stage_it += 1
         if changed:
-            face = (face & ~release) | catch
+            face = new_face
             stats["active_set_changes"] += 1
-            fixed, values = fixed_set(face)
+            fixed, values = bcs.fixed_set(bc, face, y)
             h[fixed] = values
             free_mask[:] = True
             free_mask[fixed] = False
@@ -436,31 +469,87 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
             if NEWTON_KR_MIN > 0 and step_cap > 0:
                 dkr = dkr * (kr_e >= NEWTON_KR_MIN)[:, None]
             J = sysm.pinned(sysm.jacobian(A, h, dkr), free_mask)
-            dh = None
-            if lu is not None:
-                # inexact Newton: GMRES preconditioned with the LU of an earlier Jacobian
-                # rows scaled by their 1-norm, so the dry rows (kr_min) count as much as the wet ones
-                d = np.add.reduceat(np.abs(J.data), J.indptr[:-1])
-                eta = KRYLOV_RTOL
-                if step_cap > 0:
-                    # prolonged start: forcing term of Eisenstat and Walker (1996), choice 2
-                    prev = history[-2] if len(history) > 1 else np.inf
-                    eta = min(0.1, max(KRYLOV_RTOL, 0.9 * (rel / prev) ** 2)) if rel < prev else 0.1
-                x, k, ok = _gmres(lambda v: (J @ v) / d, lambda v: lu.solve(d * v), b / d, eta, KRYLOV_MAX)
-                stats["krylov_iterations"] += k
-                stats["linear_solves"] += k
-                if ok:
-                    dh = x
-                    stats["chord_steps"] += 1
-                if k > KRYLOV_REFRESH or not ok:
-                    lu = None                     # refactorise (now, or at the next step)
-            if dh is None:
-                if lu is None:
+            fresh = False
+
+            def directions():
+                """Candidate corrections, best first: GMRES with an earlier LU, the LU of this Jacobian, Picard."""
+                nonlocal lu, fresh
+                if lu is not None:
+                    # inexact Newton: GMRES preconditioned with the LU of an earlier Jacobian
+                    # rows scaled by their 1-norm, so the dry rows (kr_min) count as much as the wet ones
+                    d = np.add.reduceat(np.abs(J.data), J.indptr[:-1])
+                    eta = KRYLOV_RTOL
+                    if step_cap > 0:
+                        # prolonged start: forcing term of Eisenstat and Walker (1996), choice 2
+                        prev = history[-2] if len(history) > 1 else np.inf
+                        eta = min(0.1, max(KRYLOV_RTOL, 0.9 * (rel / prev) ** 2)) if rel < prev else 0.1
+                    x, k, ok = _gmres(lambda v: (J @ v) / d, lambda v: lu.solve(d * v), b / d, eta, KRYLOV_MAX)
+                    stats["krylov_iterations"] += k
+                    stats["linear_solves"] += k
+                    if k > KRYLOV_REFRESH or not ok:
+                        lu = None                     # refactorise (now, or at the next step)
+                    if ok:
+                        stats["chord_steps"] += 1
+                        yield "chord", x
+                if lu is None or not fresh:
+                    t1 = time.perf_counter()
                     lu = _lu(J)
+                    fresh = True
                     stats["factorizations"] += 1
-                    stats["factor_s"] += time.perf_counter() - ta
-                dh = lu.solve(b)
-                stats["linear_solves"] += 1
+                    stats["factor_s"] += time.perf_counter() - t1
+                    stats["linear_solves"] += 1
+                    yield "newton", lu.solve(b)
+                yield "picard", picard_step(A, h, free_mask, fixed)
+
+            gen = directions()
+            kind, dh = next(gen)
+            if model.stretch == 1.0 and not changed and rel <= max(FLOW_TOL, floor) <= FLOOR_MAX:
+                # flow residual small enough for the mass balance: converged when the next correction moves
+                # no head that carries flow (weighted by the relative conductivity) measurably
+                w = np.zeros(n)
+                np.maximum.at(w, mesh.cells.ravel(), np.repeat(kr_e, mesh.cells.shape[1]))
+                dmax = float(np.abs(w * dh).max())
+                if dmax <= HTOL * dH:
+                    converged = True
+                    reason = (f"relative flow residual {rel:.1e} <= {max(FLOW_TOL, floor):.0e} (round-off floor "
+                              f"{floor:.1e}) and next head correction x kr {dmax:.1e} m <= {HTOL:.0e} x {dH:.3g} m")
+                    stats["solve_s"] += time.perf_counter() - ta
+                    break
+            # backtracking line search on the 1-norm of the flow residual; a direction that does not reduce
+            # it is replaced by the next candidate (fresh LU, then a Picard step); when none does, the trial
+            # with the least residual is taken (the iteration must move to leave the point)
+            trial = None
+            # non-monotone acceptance (Grippo, Lampariello and Lucidi 1986, SIAM J. Numer. Anal. 23, 707-716):
+            # against the largest of the last NONMONOTONE residual norms, so that a step may leave a narrow valley
+            recent_norms.append(rn)
+            ref = max(recent_norms[-NONMONOTONE:])
+            while True:
+                if kind != "picard" and step_cap > 0:
+                    dh = np.clip(dh, -step_cap * dH, step_cap * dH)
+                t = 1.0
+                ok = False
+                for _ in range(LINE_SEARCH_CUTS + 1):
+                    ht = h + t * dh
+                    rt = np.abs(residual(ht)[3][free_mask]).sum()
+                    if trial is None or rt < trial[0]:
+                        trial = (rt, ht)
+                    if rt <= (1.0 - 1e-4 * t) * ref:
+                        ok = True
+                        break
+                    t *= 0.5
+                    stats["line_search_cuts"] += 1
+                if ok:
+                    h = ht
+                    break
+                nxt = next(gen, None)
+                if nxt is None:
+                    h = trial[1]
+                    stats["failed_line_searches"] += 1
+                    break
+                kind, dh = nxt
+            log.debug("level %d nodes: it %d rel %.3e floor %.1e %s t %.3g |dh| %.3g changed %s", n, it, rel,
+                      floor, kind, t, float(np.abs(dh).max()), changed)
+            gen.close()
         else:
             free = np.flatnonzero(free_mask)
             solver = linsolve.factorize(A[free][:, free].tocsr(), linear, tol)
@@ -470,53 +559,35 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
             hn[free] = solver.solve(bc.load[free] - A[free][:, fixed] @ h[fixed])
             stats["linear_solves"] += 1
             dh = hn - h
-        stats["solve_s"] += time.perf_counter() - ta
-        if model.stretch == 1.0 and not changed and rel <= max(FLOW_TOL, floor) <= FLOOR_MAX:
-            # flow residual small enough for the mass balance: converged when the next correction moves
-            # no head that carries flow (weighted by the relative conductivity) measurably
-            w = np.zeros(n)
-            np.maximum.at(w, mesh.cells.ravel(), np.repeat(kr_e, mesh.cells.shape[1]))
-            dmax = float(np.abs(w * dh).max())
-            if dmax <= HTOL * dH:
-                converged = True
-                reason = (f"relative flow residual {rel:.1e} <= {max(FLOW_TOL, floor):.0e} (round-off floor "
-                          f"{floor:.1e}) and next head correction x kr {dmax:.1e} m <= {HTOL:.0e} x {dH:.3g} m")
-                break
-        if step_cap > 0:
-            dh = np.clip(dh, -step_cap * dH, step_cap * dH)
-        if method == "newton":
-            # backtracking line search on the 1-norm of the flow residual
-            t = 1.0
-            for _ in range(8):
-                ht = h + t * dh
-                rt = np.abs(residual(ht)[3][free_mask]).sum()
-                if rt <= (1.0 - 1e-4 * t) * rn:
-                    break
-                t *= 0.5
-                stats["line_search_cuts"] += 1
-            h = ht
-        else:
             # adaptive under-relaxation: grow while the residual falls, cut when it rises
             omega = min(1.0, omega * 1.2) if rn < prev_norm else max(0.1, omega * 0.5)
             prev_norm = rn
             h = h + omega * dh
-        if model.stretch == 1.0 and best is not None and it - best[6] >= STALL_ITERATIONS:
-            break                                 # no gain for STALL_ITERATIONS iterations: stalled
+        stats["solve_s"] += time.perf_counter() - ta
+        if model.stretch == 1.0 and best is not None:
+            # iteration budget that follows progress: stalled when the best residual has not halved over the
+            # last W iterations, W = max(STALL_MIN, STALL_FRACTION x the iterations with the final kr so far)
+            best_log.append(best[0])
+            W = max(STALL_MIN, int(STALL_FRACTION * len(best_log)))
+            if len(best_log) > W and best_log[-1] > best_log[-1 - W] / STALL_PROGRESS:
+                stalled = True
+                break
     if not converged:
         if best is None:
             best = (rel, h.copy(), A, kr_e, face.copy(), floor, it)
         rel, h, A, kr_e, face, floor, _ = best
-        recent = changes[-STALL_ITERATIONS:]
+        recent = changes[-STALL_MIN:]
         if floor > FLOOR_MAX:
             reason = (f"the round-off floor of the flow residual ({floor:.1e}) is above {FLOOR_MAX:.0e}: the "
                       "conductivity contrast (with kr_min in dry zones) is too large for a reliable balance")
-        elif it >= budget:
+        elif not stalled:
             reason = f"iteration cap ({budget} left of solver.max_iterations) reached"
         elif sum(recent) >= len(recent) // 2:
             reason = (f"the seepage-face / drain active set kept changing ({sum(recent)} changes in the last "
                       f"{len(recent)} iterations)")
         else:
-            reason = f"the flow residual stalled for {STALL_ITERATIONS} iterations above its round-off floor {floor:.1e}"
+            reason = (f"the flow residual stopped falling (not halved in the last {W} iterations) above its "
+                      f"round-off floor {floor:.1e}")
     return _Outcome(h=h, face=face, A=A, kr=kr_e, converged=converged, reason=reason, iterations=it,
                     history=history, rel=float(rel), floor=float(floor))
 
@@ -545,6 +616,14 @@ def solve_unconfined(section, mesh, Ke: np.ndarray, bc, h0: np.ndarray, face0: n
     start : the result of :func:`saturated_start` (h0 and face0 are then not used): the coarsest level
         starts from its own saturated solve.
     """
+    with linsolve.one_thread():
+        return _solve_unconfined(section, mesh, Ke, bc, h0, face0, method=method, linear=linear, tol=tol,
+                                 max_iterations=max_iterations, rtol=rtol, continuation=continuation,
+                                 sequencing=sequencing, start=start)
+
+
+def _solve_unconfined(section, mesh, Ke, bc, h0, face0, *, method, linear, tol, max_iterations, rtol,
+                      continuation, sequencing, start) -> UnconfinedSolution:
     t0 = time.perf_counter()
     if start is not None and not (sequencing and method == "newton"):
         raise ValueError("a coarse saturated start needs Newton with mesh sequencing")
@@ -553,7 +632,8 @@ def solve_unconfined(section, mesh, Ke: np.ndarray, bc, h0: np.ndarray, face0: n
     if start is not None and levels[0].mesh.n_nodes != len(start[1]):
         raise ValueError("the coarse saturated start does not match the coarsest level")
     stats = {"factorizations": 0, "linear_solves": 0, "line_search_cuts": 0, "active_set_changes": 0,
-             "chord_steps": 0, "krylov_iterations": 0, "stages": 0, "factor_s": 0.0, "solve_s": 0.0}
+             "chord_steps": 0, "krylov_iterations": 0, "stages": 0, "factor_s": 0.0, "solve_s": 0.0,
+             "picard_steps": 0, "failed_line_searches": 0, "restarts": 0}
     act = np.zeros(mesh.n_nodes, bool)
     if start is None:
         act[bc.face_nodes[face0]] = True
@@ -581,6 +661,27 @@ def solve_unconfined(section, mesh, Ke: np.ndarray, bc, h0: np.ndarray, face0: n
                        stats=stats, step_cap=STEP_CAP if k > 0 else 0.0)
         used += out.iterations
         history += out.history
+        if final and k > 0 and not out.converged and out.floor <= FLOOR_MAX and max_iterations - used > 0:
+            # safety net: the prolonged start did not lead to convergence; start this level again from its own
+            # saturated solution with the continuation in kr (as a mesh without coarse levels is solved)
+            per_level.append({"nodes": int(lv.mesh.n_nodes), "order": int(lv.mesh.order), "iterations": out.iterations,
+                              "factorizations": stats["factorizations"] - f0, "converged": False,
+                              "relative_residual": float(f"{out.rel:.3e}"), "time_s": round(time.perf_counter() - t1, 4),
+                              "restarted": True})
+            t1 = time.perf_counter()
+            f0 = stats["factorizations"]
+            fx, vals = bcs.fixed_set(lv.bc, lv.bc.face_start, lv.mesh.points[:, 1])
+            cache: dict = {}
+            h = bcs.solve_fixed(lv.sysm.assemble(np.ones(lv.mesh.n_elements)), lv.bc.load, fx, vals, linear, tol,
+                                cache)
+            stats["factorizations"] += cache["factorizations"]
+            stats["factor_s"] += cache["factor_s"]
+            stats["linear_solves"] += 1
+            stats["restarts"] += 1
+            out = _iterate(section, lv, h, lv.bc.face_start.copy(), method=method, linear=linear, tol=tol, rtol=rtol,
+                           budget=max_iterations - used, continuation=continuation, stats=stats, step_cap=0.0)
+            used += out.iterations
+            history += out.history
         per_level.append({"nodes": int(lv.mesh.n_nodes), "order": int(lv.mesh.order), "iterations": out.iterations,
                           "factorizations": stats["factorizations"] - f0, "converged": out.converged,
                           "relative_residual": float(f"{out.rel:.3e}"), "time_s": round(time.perf_counter() - t1, 4)})
@@ -599,6 +700,8 @@ def solve_unconfined(section, mesh, Ke: np.ndarray, bc, h0: np.ndarray, face0: n
         "krylov_iterations": stats["krylov_iterations"],
         "line_search_cuts": stats["line_search_cuts"], "active_set_changes": stats["active_set_changes"],
         "chord_steps": stats["chord_steps"], "continuation_stages": stats["stages"],
+        "picard_steps": stats["picard_steps"], "failed_line_searches": stats["failed_line_searches"],
+        "restarts": stats["restarts"],
         "kr_model": {"default": "exponential", "delta_factor": DELTA_FACTOR, "kr_min": KR_MIN_DEFAULT,
                      "van_genuchten_zones": [section.zone_names[i] for i in np.flatnonzero(lv.model.vg)]},
         "dry_elements": int((out.kr < 0.5).sum()),
