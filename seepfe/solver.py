@@ -29,12 +29,16 @@ __all__ = ["solve", "Conditions", "conditions"]
 
 log = logging.getLogger("seepfe")
 
+#: settle the seepage faces with saturated passes before the unconfined solve starts (the shells of zoned dams
+#: then start drained to their outlets instead of held at h = y on the whole downstream face)
+SETTLE_FACES_FIRST = True
+
 #: kept for callers of the former private helper
 _solve_fixed = bcs.solve_fixed
 
 
 def solve(section, *, order: int | None = None, size: float | None = None, mesh: Mesh | None = None,
-          linear: str | None = None) -> Result:
+          linear: str | None = None, accuracy: float | None = None) -> Result:
     """Mesh, assemble and solve a section for the steady head field.
 
     Parameters
@@ -49,6 +53,10 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
         A ready mesh of this section (skips meshing).
     linear : {"auto", "direct", "amg"}, optional
         Linear solver (default: the section's ``solver.linear``).
+    accuracy : float, optional
+        Requested relative discretisation error of the flows (default: the section's ``solver.accuracy``;
+        0 or None: the mesh as specified). When set and neither ``mesh`` nor ``size`` is given, the mesh is
+        chosen by :func:`seepfe.accuracy.solve_to_accuracy`.
 
     Returns
     -------
@@ -57,6 +65,11 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
     """
     if not isinstance(section, Section):
         section = load_section(section)
+    if accuracy is None:
+        accuracy = section.spec.solver.accuracy
+    if accuracy and mesh is None and size is None:
+        from .accuracy import solve_to_accuracy
+        return solve_to_accuracy(section, accuracy, order=order, linear=linear)
     t0 = time.perf_counter()
     if mesh is None:
         mesh = make_mesh(section, order=order, size=size)
@@ -85,7 +98,8 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
     for it in range(1, 0 if start is not None else sspec.max_iterations + 1):
         fixed, values = bcs.fixed_set(bc, face_fixed, y)
         h = bcs.solve_fixed(A, bc.load, fixed, values, method, sspec.tolerance, cache)
-        if it == 1 and sspec.phreatic == "auto" and unsaturated.is_partly_dry(mesh, h, 10 * section.tol):
+        if (it == 1 and not SETTLE_FACES_FIRST and sspec.phreatic == "auto"
+                and unsaturated.is_partly_dry(mesh, h, 10 * section.tol)):
             break          # partly dry: the faces are iterated inside the unconfined solve below
         if len(bc.face_nodes) == 0:
             converged = True

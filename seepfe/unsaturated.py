@@ -22,6 +22,7 @@ together.  See docs/unconfined.md for the equations and the measured choice.
 from __future__ import annotations
 
 import logging
+import math
 import time
 from dataclasses import dataclass, field
 
@@ -44,7 +45,9 @@ DELTA_FACTOR = 0.25
 KR_MIN_DEFAULT = 1e-6
 #: continuation: first width of the steep transition (fraction of the section's height), ratio between
 #: stages, relative residual that ends a stage, and the most Newton steps a stage takes
-STAGE_START, STAGE_RATIO, STAGE_TOL, STAGE_MAX = 0.05, 4.0, 1e-2, 4
+STAGE_START, STAGE_RATIO, STAGE_TOL, STAGE_MAX = 0.05, 4.0, 1e-2, 12
+#: a narrowing that raises the relative flow residual above this is retried with a smaller ratio
+STAGE_JUMP = 0.5
 #: stopping rule (docs/unconfined.md), with the active set unchanged: relative flow residual <= rtol; or
 #: <= max(FLOW_TOL, round-off floor) <= FLOOR_MAX (mass balance better than 1e-6) and the next correction,
 #: weighted by the nodal kr, moves no head by more than HTOL x the range of the prescribed heads and outlet
@@ -57,6 +60,8 @@ FLOOR_C, FLOW_TOL, FLOOR_MAX, HTOL = 4.0, 1e-7, 1e-6, 1e-6
 STALL_MIN, STALL_FRACTION, STALL_PROGRESS = 10, 0.3, 2.0
 #: backtracking line search: at most this many halvings of a step before the next candidate direction
 LINE_SEARCH_CUTS = 6
+#: trial heads are kept within the prescribed range widened by this fraction of it (maximum principle)
+BOUND_MARGIN = 0.01
 #: the line search accepts a step against the largest of this many recent residual norms (non-monotone)
 NONMONOTONE = 4
 #: mesh sequencing: coarse levels stop above COARSEST_NODES nodes and are solved to COARSE_RTOL
@@ -393,11 +398,18 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
     best = None
     best_log: list[float] = []          # best residual at each iteration with the final kr (stall rule)
     stage_it, omega, prev_norm = 0, 0.7, np.inf
+    stage_ratio = STAGE_RATIO
     lu = None
     reason, converged, rel, floor = "", False, np.inf, 0.0
     changes: list[int] = []
     stalled = False
     recent_norms: list[float] = []
+    # maximum principle: without flux boundaries, the heads lie between the lowest outlet (or prescribed head)
+    # and the highest prescribed head; trial iterates are projected into that range (with a margin for the
+    # overshoot of P2 interpolation), which keeps Newton from sending weakly coupled dry heads far away
+    bounded = not np.any(bc.load)
+    lo = float(min(bc.head_values.min(), y[fn].min() if len(fn) else np.inf)) - BOUND_MARGIN * dH
+    hi = float(bc.head_values.max()) + BOUND_MARGIN * dH
 
     def residual(h):
         kr_e, dkr = sysm.kr(h, derivative=(method == "newton"))
@@ -410,6 +422,10 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
         rel = np.abs(r[free]).sum() / Q
         fl = FLOOR_C * EPS * (sysm.matrix(np.abs(A.data)) @ np.abs(h))[free].sum() / Q
         return rel, fl
+
+    def merit(r, free):
+        """Line-search merit: the 1-norm of the flow residual at the unknown nodes, m3/s per m."""
+        return np.abs(r[free]).sum()
 
     def picard_step(A, h, free_mask, fixed):
         """Correction to the solution of K(h) x = f with the current kr (symmetric positive definite)."""
@@ -441,12 +457,20 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
         changed = bool(release.any() or catch.any())
         changes.append(int(changed))
         if model.stretch > 1.0 and (rel < STAGE_TOL or stage_it >= STAGE_MAX) and not changed:
-            # continuation: narrow the transition of the default kr and go on from this iterate
-            model.stretch = max(1.0, model.stretch / STAGE_RATIO)
+            # continuation: narrow the transition of the default kr and go on from this iterate; a narrowing
+            # that throws the residual far off (above STAGE_JUMP) is retried with the square root of the ratio
+            old_stretch = model.stretch
+            while True:
+                model.stretch = max(1.0, old_stretch / stage_ratio)
+                kr_e, dkr, A, r = residual(h)
+                rel, floor = measures(A, r, h, free_mask, fixed)
+                if rel <= STAGE_JUMP or stage_ratio < 1.1:
+                    break
+                stage_ratio = math.sqrt(stage_ratio)
+            if rel < STAGE_TOL:
+                stage_ratio = min(STAGE_RATIO, stage_ratio * stage_ratio)
             stats["stages"] += 1
             stage_it = 0
-            kr_e, dkr, A, r = residual(h)
-            rel, floor = measures(A, r, h, free_mask, fixed)
             if model.stretch == 1.0:
                 best = (rel, h.copy(), A, kr_e, face.copy(), floor, it)
         elif model.stretch == 1.0 and not changed and rel <= rtol:
@@ -461,7 +485,7 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
             free_mask[:] = True
             free_mask[fixed] = False
             kr_e, dkr, A, r = residual(h)
-        rn = np.abs(r[free_mask]).sum()
+        rn = merit(r, free_mask)
         b = -r
         b[fixed] = 0.0
         ta = time.perf_counter()
@@ -521,6 +545,8 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
             trial = None
             # non-monotone acceptance (Grippo, Lampariello and Lucidi 1986, SIAM J. Numer. Anal. 23, 707-716):
             # against the largest of the last NONMONOTONE residual norms, so that a step may leave a narrow valley
+            if changed or stage_it == 1:
+                recent_norms.clear()              # a new active set or kr: compare with this point only
             recent_norms.append(rn)
             ref = max(recent_norms[-NONMONOTONE:])
             while True:
@@ -530,7 +556,9 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
                 ok = False
                 for _ in range(LINE_SEARCH_CUTS + 1):
                     ht = h + t * dh
-                    rt = np.abs(residual(ht)[3][free_mask]).sum()
+                    if bounded:
+                        np.clip(ht, lo, hi, out=ht)
+                    rt = merit(residual(ht)[3], free_mask)
                     if trial is None or rt < trial[0]:
                         trial = (rt, ht)
                     if rt <= (1.0 - 1e-4 * t) * ref:
@@ -547,7 +575,7 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
                     stats["failed_line_searches"] += 1
                     break
                 kind, dh = nxt
-            log.debug("level %d nodes: it %d rel %.3e floor %.1e %s t %.3g |dh| %.3g changed %s", n, it, rel,
+            log.debug("level %d nodes: it %d stretch %.3g rel %.3e floor %.1e %s t %.3g |dh| %.3g changed %s", n, it, model.stretch, rel,
                       floor, kind, t, float(np.abs(dh).max()), changed)
             gen.close()
         else:
@@ -594,7 +622,7 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
 
 def solve_unconfined(section, mesh, Ke: np.ndarray, bc, h0: np.ndarray, face0: np.ndarray, *,
                      method: str = "newton", linear: str = "auto", tol: float = 1e-10,
-                     max_iterations: int = 60, rtol: float = 1e-9,
+                     max_iterations: int = 200, rtol: float = 1e-9,
                      continuation: bool = True, sequencing: bool = True, start=None) -> UnconfinedSolution:
     """Solve the saturated-unsaturated problem from the saturated head field h0.
 
@@ -638,6 +666,19 @@ def _solve_unconfined(section, mesh, Ke, bc, h0, face0, *, method, linear, tol, 
     if start is None:
         act[bc.face_nodes[face0]] = True
     used, per_level, out, history = 0, [], None, []
+    def restart(lv):
+        """The finest level from its own saturated solution with the continuation in kr (as a mesh without
+        coarse levels is solved): the safety net when a prolonged start did not lead to convergence."""
+        fx, vals = bcs.fixed_set(lv.bc, lv.bc.face_start, lv.mesh.points[:, 1])
+        cache: dict = {}
+        h = bcs.solve_fixed(lv.sysm.assemble(np.ones(lv.mesh.n_elements)), lv.bc.load, fx, vals, linear, tol, cache)
+        stats["factorizations"] += cache["factorizations"]
+        stats["factor_s"] += cache["factor_s"]
+        stats["linear_solves"] += 1
+        stats["restarts"] += 1
+        return _iterate(section, lv, h, lv.bc.face_start.copy(), method=method, linear=linear, tol=tol, rtol=rtol,
+                        budget=max_iterations - used, continuation=continuation, stats=stats, step_cap=0.0)
+
     for k, lv in enumerate(levels):
         final = k == len(levels) - 1
         if out is None and start is not None:
@@ -661,30 +702,24 @@ def _solve_unconfined(section, mesh, Ke, bc, h0, face0, *, method, linear, tol, 
                        stats=stats, step_cap=STEP_CAP if k > 0 else 0.0)
         used += out.iterations
         history += out.history
-        if final and k > 0 and not out.converged and out.floor <= FLOOR_MAX and max_iterations - used > 0:
-            # safety net: the prolonged start did not lead to convergence; start this level again from its own
-            # saturated solution with the continuation in kr (as a mesh without coarse levels is solved)
-            per_level.append({"nodes": int(lv.mesh.n_nodes), "order": int(lv.mesh.order), "iterations": out.iterations,
-                              "factorizations": stats["factorizations"] - f0, "converged": False,
-                              "relative_residual": float(f"{out.rel:.3e}"), "time_s": round(time.perf_counter() - t1, 4),
-                              "restarted": True})
-            t1 = time.perf_counter()
-            f0 = stats["factorizations"]
-            fx, vals = bcs.fixed_set(lv.bc, lv.bc.face_start, lv.mesh.points[:, 1])
-            cache: dict = {}
-            h = bcs.solve_fixed(lv.sysm.assemble(np.ones(lv.mesh.n_elements)), lv.bc.load, fx, vals, linear, tol,
-                                cache)
-            stats["factorizations"] += cache["factorizations"]
-            stats["factor_s"] += cache["factor_s"]
-            stats["linear_solves"] += 1
-            stats["restarts"] += 1
-            out = _iterate(section, lv, h, lv.bc.face_start.copy(), method=method, linear=linear, tol=tol, rtol=rtol,
-                           budget=max_iterations - used, continuation=continuation, stats=stats, step_cap=0.0)
-            used += out.iterations
-            history += out.history
         per_level.append({"nodes": int(lv.mesh.n_nodes), "order": int(lv.mesh.order), "iterations": out.iterations,
                           "factorizations": stats["factorizations"] - f0, "converged": out.converged,
                           "relative_residual": float(f"{out.rel:.3e}"), "time_s": round(time.perf_counter() - t1, 4)})
+        if k > 0 and not out.converged and out.floor <= FLOOR_MAX and max_iterations - used > 0:
+            # a level started from a prolonged solution did not converge: go to the finest level and start it
+            # afresh (its own saturated solution, continuation), with what is left of the budget
+            per_level[-1]["abandoned"] = True
+            lv = levels[-1]
+            t1 = time.perf_counter()
+            f0 = stats["factorizations"]
+            out = restart(lv)
+            used += out.iterations
+            history += out.history
+            per_level.append({"nodes": int(lv.mesh.n_nodes), "order": int(lv.mesh.order),
+                              "iterations": out.iterations, "factorizations": stats["factorizations"] - f0,
+                              "converged": out.converged, "relative_residual": float(f"{out.rel:.3e}"),
+                              "time_s": round(time.perf_counter() - t1, 4), "restart": True})
+            break
     converged = out.converged
     if not converged:
         log.warning("unconfined (phreatic-surface) iteration did not converge in %d iterations: %s; relative "

@@ -198,7 +198,8 @@ def test_zoned_dam_contrast_1e4_anisotropic_shells_with_chimney_and_blanket_drai
     # bounded number of iterations, the balance and what the drains do.
     r = seepfe.solve(_zoned())
     info = r.solver_info["unconfined"]
-    assert info["converged"] and info["iterations"] <= 45
+    # bounded: the continuation in kr narrows adaptively (issue 11), most of these are cheap GMRES steps
+    assert info["converged"] and info["iterations"] <= 100
     assert r.balance["relative_error"] < 1e-6
     drains = r.drain_flows()
     assert drains["chimney"] > 0 and drains["blanket"] >= 0
