@@ -57,7 +57,7 @@ FLOOR_C, FLOW_TOL, FLOOR_MAX, HTOL = 4.0, 1e-7, 1e-6, 1e-6
 #: iteration budget that follows progress (after the continuation): the iteration ends as stalled when its best
 #: flow residual has not fallen by STALL_PROGRESS over the last W = max(STALL_MIN, STALL_FRACTION x iterations
 #: so far) iterations; solver.max_iterations stays the hard cap
-STALL_MIN, STALL_FRACTION, STALL_PROGRESS = 10, 0.3, 2.0
+STALL_MIN, STALL_FRACTION, STALL_PROGRESS = 10, 0.3, 1.2
 #: backtracking line search: at most this many halvings of a step before the next candidate direction
 LINE_SEARCH_CUTS = 6
 #: trial heads are kept within the prescribed range widened by this fraction of it (maximum principle)
@@ -614,7 +614,7 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
             reason = (f"the seepage-face / drain active set kept changing ({sum(recent)} changes in the last "
                       f"{len(recent)} iterations)")
         else:
-            reason = (f"the flow residual stopped falling (not halved in the last {W} iterations) above its "
+            reason = (f"the flow residual stopped falling (not cut by {STALL_PROGRESS:g}x in the last {W} iterations) above its "
                       f"round-off floor {floor:.1e}")
     return _Outcome(h=h, face=face, A=A, kr=kr_e, converged=converged, reason=reason, iterations=it,
                     history=history, rel=float(rel), floor=float(floor))
