@@ -98,6 +98,8 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
     for it in range(1, 0 if start is not None else sspec.max_iterations + 1):
         fixed, values = bcs.fixed_set(bc, face_fixed, y)
         h = bcs.solve_fixed(A, bc.load, fixed, values, method, sspec.tolerance, cache)
+        if it == 1:
+            first = (h, face_fixed.copy())
         if (it == 1 and not SETTLE_FACES_FIRST and sspec.phreatic == "auto"
                 and unsaturated.is_partly_dry(mesh, h, 10 * section.tol)):
             break          # partly dry: the faces are iterated inside the unconfined solve below
@@ -116,6 +118,17 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
         unconf = unsaturated.solve_unconfined(
             section, mesh, Ke, bc, None if start is not None else h, face_fixed, method=sspec.nonlinear,
             linear=method, tol=sspec.tolerance, max_iterations=sspec.max_iterations, start=start)
+        if not unconf.converged and start is None and SETTLE_FACES_FIRST and it > 1:
+            # from the settled faces it did not converge: once more from the first saturated pass
+            again = unsaturated.solve_unconfined(
+                section, mesh, Ke, bc, first[0], first[1], method=sspec.nonlinear, linear=method,
+                tol=sspec.tolerance, max_iterations=sspec.max_iterations)
+            for key in ("iterations", "factorizations", "linear_solves", "krylov_iterations"):
+                again.info[key] += unconf.info[key]
+            again.info["times_s"]["factor"] += unconf.info["times_s"]["factor"]
+            again.info["restarts"] += 1
+            if again.converged or again.info["relative_residual"] < unconf.info["relative_residual"]:
+                unconf = again
         h, A, fixed, face_fixed = unconf.h, unconf.matrix, unconf.fixed, unconf.face_active
         converged = unconf.converged     # the active set of the faces is iterated inside it
     t3 = time.perf_counter()
