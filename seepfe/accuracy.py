@@ -41,6 +41,24 @@ from .errors import SeepfeError
 
 __all__ = ["estimate", "default_quantities", "solve_to_accuracy", "MAX_ROUNDS"]
 
+#: the solve function, registered by seepfe.solver when it is imported (so this module does not import the
+#: solver: the solver calls solve_to_accuracy for the ``solver.accuracy`` key)
+_solve = None
+
+
+def register_solver(fn) -> None:
+    """Called by :mod:`seepfe.solver` with its ``solve``."""
+    global _solve
+    _solve = fn
+
+
+def _solver():
+    if _solve is None:
+        import importlib
+        importlib.import_module("seepfe.solver")    # registers itself
+    return _solve
+
+
 #: rounds of re-meshing when a mesh is chosen for a requested accuracy
 MAX_ROUNDS = 4
 #: a boundary flow below this fraction of the largest one is left out of the default quantities
@@ -122,7 +140,7 @@ def estimate(result, quantities=None, *, levels: int = 2, linear: str | None = N
         {name: {"value", "error_estimate", "relative", "observed_order" (float or None), "method",
         "extrapolated", "coarse_values"}}; units those of the quantity.
     """
-    from .solver import solve
+    solve = _solver()
     fn = quantities or default_quantities
     q1 = fn(result)
     coarse = []
@@ -177,7 +195,7 @@ def solve_to_accuracy(section, target: float, *, order=None, linear=None, quanti
     Refines uniformly (the refinements keep their ratio to the global size); values at singular corners are
     not part of the target (module docstring)."""
     from .mesh import make_mesh
-    from .solver import solve
+    solve = _solver()
     if not target > 0:
         raise SeepfeError("the requested accuracy must be a positive relative error")
     scale, res, est, worst = 1.0, None, {}, math.inf

@@ -19,6 +19,7 @@ import time
 
 import numpy as np
 
+from . import accuracy as accuracy_mod
 from . import bcs, fem, linsolve, unsaturated
 from .bcs import Conditions, conditions
 from .mesh import Mesh, make_mesh
@@ -68,8 +69,7 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
     if accuracy is None:
         accuracy = section.spec.solver.accuracy
     if accuracy and mesh is None and size is None:
-        from .accuracy import solve_to_accuracy
-        return solve_to_accuracy(section, accuracy, order=order, linear=linear)
+        return accuracy_mod.solve_to_accuracy(section, accuracy, order=order, linear=linear)
     t0 = time.perf_counter()
     if mesh is None:
         mesh = make_mesh(section, order=order, size=size)
@@ -159,3 +159,6 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
                   element_K=Kz[mesh.zone] if unconf is None else Kz[mesh.zone] * unconf.kr[:, None, None],
                   kr=None if unconf is None else unconf.kr,
                   face_nodes=bc.face_nodes, face_active=face_fixed.copy())
+
+
+accuracy_mod.register_solver(solve)
