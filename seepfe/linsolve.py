@@ -50,9 +50,9 @@ def one_thread():
 class _LDL:
     """qdldl's LDL^T of a symmetric positive-definite CSC matrix (upper triangle passed)."""
 
-    def __init__(self, A: sp.csc_matrix):
+    def __init__(self, A: sp.spmatrix):
         import qdldl
-        self._f = qdldl.Solver(sp.triu(A, format="csc"), upper=True)
+        self._f = qdldl.Solver(sp.triu(A, format="csc"), upper=True)     # the upper triangle is all it reads
 
     def solve(self, b):
         return self._f.solve(np.ascontiguousarray(b, dtype=float))
@@ -63,18 +63,17 @@ def spd_factor(A: sp.spmatrix):
 
     CHOLMOD when importable, else qdldl's LDL^T, else (or when the LDL^T meets a zero or negative pivot)
     SuperLU with COLAMD. Raises SolverError when the matrix is singular."""
-    Ac = A.tocsc()
     try:
         from sksparse.cholmod import CholmodNotPositiveDefiniteError, cholesky   # optional, faster where installed
     except ImportError:
         pass
     else:
         try:
-            return cholesky(Ac), "cholmod"
+            return cholesky(A.tocsc()), "cholmod"
         except CholmodNotPositiveDefiniteError:
             pass
     try:
-        f = _LDL(Ac)
+        f = _LDL(A)
     except ImportError:
         f = None
     except (ValueError, RuntimeError):       # zero pivot: not positive definite
@@ -83,7 +82,7 @@ def spd_factor(A: sp.spmatrix):
         # qdldl does not test the signs of D; a negative pivot shows as a residual far above round-off
         return f, "qdldl-ldlt"
     try:
-        return spla.splu(Ac, permc_spec="COLAMD"), "superlu-colamd"
+        return spla.splu(A.tocsc(), permc_spec="COLAMD"), "superlu-colamd"
     except RuntimeError as e:
         raise SolverError(f"the conductance matrix is singular ({e}): is part of the section cut off "
                           "from every head boundary?") from None
