@@ -722,13 +722,24 @@ def _solve_unconfined(section, mesh, Ke, bc, h0, face0, *, method, linear, tol, 
             break
     converged = out.converged
     if not converged:
+        _, det = fem.jacobians(mesh.points, mesh.cells)
+        smallest = float(np.sqrt(2.0 * np.abs(det).min()))
+        if "cap" in out.reason:
+            advice = f"raise solver.max_iterations (now {max_iterations})"
+        else:
+            advice = (f"raise solver.max_iterations (now {max_iterations}), use a coarser local mesh size (the "
+                      f"smallest element is {smallest:.3g} m), or try \"solver\": {{\"nonlinear\": \"picard\"}}"
+                      if method == "newton" else
+                      f"raise solver.max_iterations (now {max_iterations}), use a coarser local mesh size (the "
+                      f"smallest element is {smallest:.3g} m), or the default \"nonlinear\": \"newton\"")
         log.warning("unconfined (phreatic-surface) iteration did not converge in %d iterations: %s; relative "
-                    "flow residual %.2e (target %.0e); the best iterate is returned, marked unconverged",
-                    used, out.reason, out.rel, rtol)
+                    "flow residual %.2e (target %.0e); the best iterate is returned, marked unconverged; to "
+                    "change: %s", used, out.reason, out.rel, rtol, advice)
     fixed = np.sort(np.concatenate([bc.head_nodes, bc.face_nodes[out.face]]))
     info = {
         "method": method, "iterations": used, "converged": bool(converged),
         "relative_residual": out.rel, "round_off_floor": float(f"{out.floor:.3e}"), "stop_reason": out.reason,
+        "advice": "" if converged else advice,
         "residual_history": [float(f"{v:.3e}") for v in history],
         "levels": per_level,
         "factorizations": stats["factorizations"], "linear_solves": stats["linear_solves"],
