@@ -1,14 +1,23 @@
 """Sparse linear solvers for the condensed (symmetric positive-definite) conductance system.
 
-``direct``: sparse LU (SuperLU with COLAMD ordering), or CHOLMOD where scikit-sparse is installed.
+``direct``: a sparse LDL^T factorisation (qdldl, with its own approximate-minimum-degree ordering), or
+CHOLMOD where scikit-sparse is installed; SuperLU (COLAMD ordering) when neither is importable or the
+LDL^T meets a zero or negative pivot (the matrix is then not positive definite: a part of the section cut
+off from every head boundary, or a contrast beyond double precision).
 ``amg``: smoothed-aggregation algebraic multigrid (pyamg) as a preconditioner for conjugate gradients.
 ``auto``: direct up to :data:`AMG_ABOVE` unknowns, AMG above (measured in scripts/bench.py).
 
 A factorisation is kept in the returned object so that new right-hand sides (seepage-face passes,
 repeated loads) cost only the triangular solves.
+
+:func:`one_thread` limits BLAS and OpenMP pools to one thread for the solver's small dense operations
+(GMRES orthogonalisation, sampling of the relative conductivity) and restores them afterwards; the
+process environment is never changed.
 """
 
 from __future__ import annotations
+
+import contextlib
 
 import numpy as np
 import scipy.sparse as sp
@@ -16,35 +25,95 @@ import scipy.sparse.linalg as spla
 
 from .errors import SolverError
 
-__all__ = ["factorize", "AMG_ABOVE"]
+__all__ = ["factorize", "AMG_ABOVE", "one_thread", "spd_factor"]
 
-#: unknowns above which ``auto`` picks algebraic multigrid
-AMG_ABOVE = 300_000
+#: unknowns above which ``auto`` picks algebraic multigrid (scripts/bench.py: with the LDL^T the direct
+#: solve stays ahead of smoothed aggregation + CG, and uses less than 2 GiB, up to about this size)
+AMG_ABOVE = 600_000
+
+
+@contextlib.contextmanager
+def one_thread():
+    """BLAS/OpenMP pools limited to one thread inside the block (threadpoolctl), restored afterwards.
+
+    Small dense products (tens x tens of thousands) run 2-5x slower with several OpenBLAS threads on shared
+    cores (docs/unconfined.md); the caller's settings and environment variables are left as they were."""
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:          # a dependency; without it the pools keep their settings
+        yield
+        return
+    with threadpool_limits(limits=1):
+        yield
+
+
+class _LDL:
+    """qdldl's LDL^T of a symmetric positive-definite CSC matrix (upper triangle passed)."""
+
+    def __init__(self, A: sp.spmatrix):
+        import qdldl
+        self._f = qdldl.Solver(sp.triu(A, format="csc"), upper=True)     # the upper triangle is all it reads
+
+    def solve(self, b):
+        return self._f.solve(np.ascontiguousarray(b, dtype=float))
+
+
+def spd_factor(A: sp.spmatrix):
+    """Factorise a symmetric positive-definite matrix; returns (object with ``solve(b)``, backend name).
+
+    CHOLMOD when importable, else qdldl's LDL^T, else (or when the LDL^T meets a zero or negative pivot)
+    SuperLU with COLAMD. Raises SolverError when the matrix is singular."""
+    try:
+        from sksparse.cholmod import CholmodNotPositiveDefiniteError, cholesky   # optional, faster where installed
+    except ImportError:
+        pass
+    else:
+        try:
+            return cholesky(A.tocsc()), "cholmod"
+        except CholmodNotPositiveDefiniteError:
+            pass
+    try:
+        f = _LDL(A)
+    except ImportError:
+        f = None
+    except (ValueError, RuntimeError):       # zero pivot: not positive definite
+        f = None
+    if f is not None:
+        # qdldl does not test the signs of D; a negative pivot shows as a residual far above round-off
+        return f, "qdldl-ldlt"
+    try:
+        return spla.splu(A.tocsc(), permc_spec="COLAMD"), "superlu-colamd"
+    except RuntimeError as e:
+        raise SolverError(f"the conductance matrix is singular ({e}): is part of the section cut off "
+                          "from every head boundary?") from None
 
 
 class _Direct:
     method = "direct"
 
     def __init__(self, A: sp.csr_matrix):
-        self.backend = "superlu-colamd"
-        try:
-            from sksparse.cholmod import cholesky  # optional, faster where installed
-            self._f = cholesky(A.tocsc())
-            self.backend = "cholmod"
-            self._solve = self._f
-        except ImportError:
-            try:
-                self._f = spla.splu(A.tocsc(), permc_spec="COLAMD")
-            except RuntimeError as e:
-                raise SolverError(f"the conductance matrix is singular ({e}): is part of the section cut off "
-                                  "from every head boundary?") from None
-            self._solve = self._f.solve
+        self.A = A
+        f, self.backend = spd_factor(A)
+        self._solve = f if self.backend == "cholmod" else f.solve
+        self._amax = float(np.abs(A.data).max()) if A.nnz else 0.0
         self.iterations = 0
 
     def solve(self, b: np.ndarray) -> np.ndarray:
         x = self._solve(b)
         if not np.all(np.isfinite(x)):
             raise SolverError("the direct solve returned non-finite heads: the system is singular")
+        if self.backend == "qdldl-ldlt":
+            # LDL^T without pivoting: check the residual once per solve (a product with A, ~1 % of the cost)
+            r = float(np.abs(self.A @ x - b).max())
+            scale = float(np.abs(b).max()) + self._amax * float(np.abs(x).max())
+            if not r <= 1e-8 * max(scale, 1e-300):
+                try:
+                    self._solve = spla.splu(self.A.tocsc(), permc_spec="COLAMD").solve
+                except RuntimeError as e:
+                    raise SolverError(f"the conductance matrix is singular ({e}): is part of the section cut "
+                                      "off from every head boundary?") from None
+                self.backend = "superlu-colamd"
+                return self.solve(b)
         return x
 
 

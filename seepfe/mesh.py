@@ -425,7 +425,7 @@ def _gmsh_mesh(section: Section, size: float, scale: float):
 
 
 def make_mesh(section: Section, order: int | None = None, size: float | None = None,
-              split: int | None = None) -> Mesh:
+              split: int | None = None, scale: float = 1.0) -> Mesh:
     """Mesh a validated section.
 
     Parameters
@@ -437,6 +437,9 @@ def make_mesh(section: Section, order: int | None = None, size: float | None = N
         Element size in m; default from ``mesh.size`` or extent / 60.
     split : int, optional
         Number of 4-way splits after a coarser gmsh mesh; default chosen from the estimated count.
+    scale : float
+        Multiplies every element size, the global one and those of the refinements (coarser or finer
+        versions of the same mesh spec: :mod:`seepfe.accuracy`).
 
     Raises
     ------
@@ -447,7 +450,7 @@ def make_mesh(section: Section, order: int | None = None, size: float | None = N
     order = order or ms.order
     S = size or default_size(section)
     try:
-        est = estimate_triangles(section, S)
+        est = estimate_triangles(section, S) / scale**2
     except (ZeroDivisionError, OverflowError):     # sizes so small that their squares underflow
         est = math.inf
     if not est <= ms.max_elements:
@@ -461,7 +464,7 @@ def make_mesh(section: Section, order: int | None = None, size: float | None = N
         while est / 4**split > SPLIT_ABOVE and split < 3:
             split += 1
     t0 = time.perf_counter()
-    pts, tri, zone, be, bt, re, rt = _gmsh_mesh(section, S, 2.0**split)
+    pts, tri, zone, be, bt, re, rt = _gmsh_mesh(section, S, 2.0**split * scale)
     t1 = time.perf_counter()
     if len(re):
         # barriers: double their nodes now, so splitting and P2 midpoints follow on each side;
@@ -484,7 +487,7 @@ def make_mesh(section: Section, order: int | None = None, size: float | None = N
     be, bt = be[bt >= -1], bt[bt >= -1]
     t2 = time.perf_counter()
     stats = {"nodes": int(len(pts)), "vertices": int(nv), "elements": int(len(cells)), "order": int(order),
-             "size_m": float(S), "splits": int(split), "min_angle_deg": round(min_angle, 3),
+             "size_m": float(S * scale), "scale": float(scale), "splits": int(split), "min_angle_deg": round(min_angle, 3),
              "worst_quality": round(worst_q, 4), "gmsh_s": round(t1 - t0, 4), "mesh_s": round(t2 - t0, 4)}
     return Mesh(points=pts, cells=cells.astype(np.int64), zone=zone.astype(np.int64),
                 edges=be.astype(np.int64), edge_boundary=bt.astype(np.int64), order=order,

@@ -208,10 +208,15 @@ class SolverSpec(BaseModel):
     linear: Literal["auto", "direct", "amg"] = "auto"
     tolerance: Positive = Field(1e-10, description="relative residual for the iterative solver")
     max_iterations: Annotated[int, Field(gt=0)] = Field(
-        60, description="cap on seepage-face / nonlinear iterations")
+        200, description="hard cap on seepage-face / nonlinear iterations (the unconfined iteration also stops "
+                         "earlier when its flow residual stops falling)")
     phreatic: Literal["auto", "off"] = Field(
         "auto", description="auto: find the phreatic surface when part of the section lies above it "
                             "(saturated-unsaturated solve); off: treat the whole section as saturated")
+    accuracy: Optional[Positive] = Field(
+        None, description="requested relative discretisation error of the seepage quantity (flow per boundary), "
+                          "e.g. 0.01: seepfe refines the mesh uniformly until the estimate (seepfe.accuracy, from "
+                          "coarser meshes) meets it; values at singular corners are not part of it")
     nonlinear: Literal["newton", "picard"] = Field(
         "newton", description="iteration of the unconfined solve: newton (line search) or picard "
                               "(under-relaxed)")

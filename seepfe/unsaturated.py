@@ -22,6 +22,7 @@ together.  See docs/unconfined.md for the equations and the measured choice.
 from __future__ import annotations
 
 import logging
+import math
 import time
 from dataclasses import dataclass, field
 
@@ -29,7 +30,8 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-from . import fem, linsolve, nested
+from . import bcs, fem, linsolve, nested
+from .bcs import conditions
 from .errors import SolverError
 
 __all__ = ["KrModel", "UnconfinedSolution", "solve_unconfined", "saturated_start", "is_partly_dry", "DELTA_FACTOR",
@@ -43,15 +45,25 @@ DELTA_FACTOR = 0.25
 KR_MIN_DEFAULT = 1e-6
 #: continuation: first width of the steep transition (fraction of the section's height), ratio between
 #: stages, relative residual that ends a stage, and the most Newton steps a stage takes
-STAGE_START, STAGE_RATIO, STAGE_TOL, STAGE_MAX = 0.05, 4.0, 1e-2, 4
+STAGE_START, STAGE_RATIO, STAGE_TOL, STAGE_MAX = 0.05, 4.0, 1e-2, 12
+#: a narrowing that raises the relative flow residual above this is retried with a smaller ratio
+STAGE_JUMP = 0.5
 #: stopping rule (docs/unconfined.md), with the active set unchanged: relative flow residual <= rtol; or
 #: <= max(FLOW_TOL, round-off floor) <= FLOOR_MAX (mass balance better than 1e-6) and the next correction,
 #: weighted by the nodal kr, moves no head by more than HTOL x the range of the prescribed heads and outlet
 #: elevations.  Round-off floor = FLOOR_C x EPS x sum_free (|K(h)| |h|) / Q (grows with the contrast).
 EPS = float(np.finfo(float).eps)
 FLOOR_C, FLOW_TOL, FLOOR_MAX, HTOL = 4.0, 1e-7, 1e-6, 1e-6
-#: no new best residual in this many iterations (after the continuation) ends the iteration as stalled
-STALL_ITERATIONS = 8
+#: iteration budget that follows progress (after the continuation): the iteration ends as stalled when its best
+#: flow residual has not fallen by STALL_PROGRESS over the last W = max(STALL_MIN, STALL_FRACTION x iterations
+#: so far) iterations; solver.max_iterations stays the hard cap
+STALL_MIN, STALL_FRACTION, STALL_PROGRESS = 10, 0.3, 1.2
+#: backtracking line search: at most this many halvings of a step before the next candidate direction
+LINE_SEARCH_CUTS = 6
+#: trial heads are kept within the prescribed range widened by this fraction of it (maximum principle)
+BOUND_MARGIN = 0.01
+#: the line search accepts a step against the largest of this many recent residual norms (non-monotone)
+NONMONOTONE = 4
 #: mesh sequencing: coarse levels stop above COARSEST_NODES nodes and are solved to COARSE_RTOL
 COARSEST_NODES, COARSE_RTOL = 1500, 1e-6
 #: inexact Newton: GMRES (rows scaled by their 1-norm) to KRYLOV_RTOL with the LU of an earlier Jacobian as
@@ -108,11 +120,14 @@ class KrModel:
         delta = DELTA_FACTOR * size / mesh.order
         return cls(vg=vg, alpha=alpha, n=n, kr_min=kmin, delta=delta, zone=mesh.zone)
 
-    def __call__(self, psi: np.ndarray, derivative: bool = True):
-        """kr and dkr/dpsi (1/m) at psi (E, S) in m, for each element's zone."""
-        z = self.zone
+    def __call__(self, psi: np.ndarray, derivative: bool = True, elements=None):
+        """kr and dkr/dpsi (1/m) at psi (E', S) in m, for each element's zone.
+
+        elements : (E',) indices of the elements whose samples psi holds (default: all, in order)."""
+        z = self.zone if elements is None else self.zone[elements]
+        delta = self.delta if elements is None else self.delta[elements]
         kmin = self.kr_min[z][:, None]
-        d = self.stretch * self.delta[:, None]
+        d = self.stretch * delta[:, None]
         s = np.minimum(psi, 0.0) / d
         ex = np.exp(s)
         kr = kmin + (1.0 - kmin) * (1.0 - s) * ex          # C1 at psi = 0: kr = 1, dkr/dpsi = 0
@@ -121,17 +136,16 @@ class KrModel:
             rows = np.flatnonzero(self.vg[z])
             if len(rows):
                 p = psi[rows]
-                kv = self._vgm(p, rows)
-                kr[rows] = kv
+                zr = z[rows]
+                kr[rows] = self._vgm(p, zr)
                 if derivative:
                     eps = 1e-7 * (1.0 + np.abs(p))
-                    dk[rows] = np.where(p < 0.0, (self._vgm(np.minimum(p + eps, 0.0), rows)
-                                                  - self._vgm(p - eps, rows))
+                    dk[rows] = np.where(p < 0.0, (self._vgm(np.minimum(p + eps, 0.0), zr)
+                                                  - self._vgm(p - eps, zr))
                                         / (np.minimum(p + eps, 0.0) - (p - eps)), 0.0)
         return kr, dk
 
-    def _vgm(self, p, rows):
-        z = self.zone[rows]
+    def _vgm(self, p, z):
         a, n, kmin = self.alpha[z][:, None], self.n[z][:, None], self.kr_min[z][:, None]
         m = 1.0 - 1.0 / n
         se = (1.0 + (a * np.maximum(-p, 0.0)) ** n) ** (-m)
@@ -173,17 +187,30 @@ class _System:
         xi = _sample_points(SAMPLES_PER_SIDE)
         self.N = fem.shape(mesh.order, xi)                    # (S, nloc)
         self.w = np.full(len(xi), 1.0 / len(xi))
-        self.ys = mesh.points[c, 1] @ self.N.T                 # (E, S) elevation at the samples, m
+        # psi at a sample is sum_i N_i psi_i with sum_i N_i = 1, so it is at least
+        # min psi_i - neg (max psi_i - min psi_i), neg = largest sum of the negative N_i over the samples
+        # (0 for P1): an element whose bound is >= 0 is fully wet (kr = 1, no derivative) and is skipped
+        self.neg = float(np.max(-np.minimum(self.N, 0.0).sum(axis=1)))
+        self.y_cells = mesh.points[c, 1]                       # (E, nloc) elevation of the nodes, m
+        self.partly_dry = 0                                    # elements sampled at the last call
 
     def matrix(self, data: np.ndarray) -> sp.csr_matrix:
         return sp.csr_matrix((data, self.indices, self.indptr), shape=(self.n, self.n))
 
     def kr(self, h: np.ndarray, derivative: bool = True):
-        """Element kr (E,) and d kr_e / d h_local (E, nloc)."""
-        psi = h[self.mesh.cells] @ self.N.T - self.ys
-        k, dk = self.model(psi, derivative)
-        kr_e = k @ self.w
-        dkr = (dk * self.w) @ self.N if derivative else None
+        """Element kr (E,) and d kr_e / d h_local (E, nloc); only partly dry elements are sampled."""
+        psin = h[self.mesh.cells] - self.y_cells             # nodal pressure head (E, nloc), m
+        lo, hi = psin.min(axis=1), psin.max(axis=1)
+        rows = np.flatnonzero(lo - self.neg * (hi - lo) < 0.0)
+        self.partly_dry = len(rows)
+        E, nl = psin.shape
+        kr_e = np.ones(E)
+        dkr = np.zeros((E, nl)) if derivative else None
+        if len(rows):
+            k, dk = self.model(psin[rows] @ self.N.T, derivative, rows)
+            kr_e[rows] = k @ self.w
+            if derivative:
+                dkr[rows] = (dk * self.w) @ self.N
         return kr_e, dkr
 
     def assemble(self, kr_e: np.ndarray) -> sp.csr_matrix:
@@ -210,16 +237,24 @@ def is_partly_dry(mesh, h: np.ndarray, tol: float) -> bool:
     return bool(psi.min() < -tol) or bool((h - mesh.points[:, 1]).min() < -tol)
 
 
+def _hierarchy(mesh):
+    """Levels for mesh sequencing: only meshes made by splits have them (a coarser mesh of the same order
+    first).  An unsplit P2 mesh is solved on itself: starting it from P1 on the same triangles stalled on
+    locally refined meshes (drain ends refined to 1/1000 of the height, tests/test_unconfined_corpus.py)."""
+    if mesh.stats.get("splits", 0) < 1:
+        return [(mesh, None)]
+    return nested.hierarchy(mesh, min_nodes=COARSEST_NODES)
+
+
 def saturated_start(section, mesh, linear: str = "direct", tol: float = 1e-10):
     """The first saturated solve on the coarsest nested level of a split mesh (costs a fraction of the fine one).
 
     Returns (hierarchy, h, face, solver_cache) when the mesh has coarse levels and the saturated head field of
     the coarsest level is partly dry (the unconfined solve starts from it there), else None (the caller makes
     the saturated solve on the given mesh, which decides as before)."""
-    hier = nested.hierarchy(mesh, min_nodes=COARSEST_NODES)
+    hier = _hierarchy(mesh)
     if len(hier) < 2:
         return None
-    from .solver import _solve_fixed, conditions          # solver imports this module
     m = hier[-1][0]
     try:
         b = conditions(section, m)
@@ -228,11 +263,9 @@ def saturated_start(section, mesh, linear: str = "direct", tol: float = 1e-10):
     ke = fem.element_matrices(m.points, m.cells, section.zone_tensors()[m.zone], m.order)
     A = fem.assemble(m.cells, ke, m.n_nodes)
     y = m.points[:, 1]
-    fixed = np.concatenate([b.head_nodes, b.face_nodes[b.face_start]])
-    values = np.concatenate([b.head_values, y[b.face_nodes[b.face_start]]])
-    o = np.argsort(fixed)
+    fixed, values = bcs.fixed_set(b, b.face_start, y)
     cache: dict = {}
-    h = _solve_fixed(A, b.load, fixed[o], values[o], linear, tol, cache)
+    h = bcs.solve_fixed(A, b.load, fixed, values, linear, tol, cache)
     if not is_partly_dry(m, h, 10 * section.tol):
         return None
     return hier, h, b.face_start.copy(), cache
@@ -306,7 +339,7 @@ class _Level:
 def _levels(section, mesh, Ke, bc, sequencing: bool, hier=None) -> list:
     """The levels of the solve, coarsest first (just the given mesh without sequencing)."""
     if hier is None:
-        hier = nested.hierarchy(mesh, min_nodes=COARSEST_NODES) if sequencing else [(mesh, None)]
+        hier = _hierarchy(mesh) if sequencing else [(mesh, None)]
     hier = list(hier)
     out = []
     Kz = section.zone_tensors()
@@ -314,7 +347,6 @@ def _levels(section, mesh, Ke, bc, sequencing: bool, hier=None) -> list:
         if i == 0:
             ke, b = Ke, bc
         else:
-            from .solver import conditions          # solver imports this module
             try:
                 b = conditions(section, m)
             except SolverError:                      # a coarse level without a head node: stop there
@@ -364,16 +396,20 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
     h = h.copy()
     history: list[float] = []
     best = None
+    best_log: list[float] = []          # best residual at each iteration with the final kr (stall rule)
     stage_it, omega, prev_norm = 0, 0.7, np.inf
+    stage_ratio = STAGE_RATIO
     lu = None
     reason, converged, rel, floor = "", False, np.inf, 0.0
     changes: list[int] = []
-
-    def fixed_set(face):
-        fixed = np.concatenate([bc.head_nodes, fn[face]])
-        values = np.concatenate([bc.head_values, y[fn[face]]])
-        o = np.argsort(fixed)
-        return fixed[o], values[o]
+    stalled = False
+    recent_norms: list[float] = []
+    # maximum principle: without flux boundaries, the heads lie between the lowest outlet (or prescribed head)
+    # and the highest prescribed head; trial iterates are projected into that range (with a margin for the
+    # overshoot of P2 interpolation), which keeps Newton from sending weakly coupled dry heads far away
+    bounded = not np.any(bc.load)
+    lo = float(min(bc.head_values.min(), y[fn].min() if len(fn) else np.inf)) - BOUND_MARGIN * dH
+    hi = float(bc.head_values.max()) + BOUND_MARGIN * dH
 
     def residual(h):
         kr_e, dkr = sysm.kr(h, derivative=(method == "newton"))
@@ -387,9 +423,27 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
         fl = FLOOR_C * EPS * (sysm.matrix(np.abs(A.data)) @ np.abs(h))[free].sum() / Q
         return rel, fl
 
+    def merit(r, free):
+        """Line-search merit: the 1-norm of the flow residual at the unknown nodes, m3/s per m."""
+        return np.abs(r[free]).sum()
+
+    def picard_step(A, h, free_mask, fixed):
+        """Correction to the solution of K(h) x = f with the current kr (symmetric positive definite)."""
+        ta = time.perf_counter()
+        fi = np.flatnonzero(free_mask)
+        Af = A[fi]
+        f, _ = linsolve.spd_factor(Af[:, fi])
+        stats["factorizations"] += 1
+        stats["picard_steps"] += 1
+        stats["factor_s"] += time.perf_counter() - ta
+        x = h.copy()
+        x[fi] = f.solve(bc.load[fi] - Af[:, fixed] @ h[fixed])
+        stats["linear_solves"] += 1
+        return x - h
+
     it = 0
     for it in range(1, budget + 1):
-        fixed, values = fixed_set(face)
+        fixed, values = bcs.fixed_set(bc, face, y)
         h[fixed] = values
         free_mask = np.ones(n, bool)
         free_mask[fixed] = False
@@ -400,21 +454,24 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
         if model.stretch == 1.0 and (best is None or rel < best[0]):
             best = (rel, h.copy(), A, kr_e, face.copy(), floor, it)
         # active set of the seepage faces and drains, updated with the current iterate
-        if len(fn):
-            scale = max(np.abs(r[bc.head_nodes]).max(), 1e-300)
-            release = face & (r[fn] > 1e-9 * scale)              # inflow at an outflow point
-            catch = ~face & (h[fn] > y[fn] + htol)              # head above the outlet, no outflow yet
-            changed = bool(release.any() or catch.any())
-        else:
-            changed = False
+        new_face, release, catch = bcs.update_active(bc, face, r, h, y, htol)
+        changed = bool(release.any() or catch.any())
         changes.append(int(changed))
         if model.stretch > 1.0 and (rel < STAGE_TOL or stage_it >= STAGE_MAX) and not changed:
-            # continuation: narrow the transition of the default kr and go on from this iterate
-            model.stretch = max(1.0, model.stretch / STAGE_RATIO)
+            # continuation: narrow the transition of the default kr and go on from this iterate; a narrowing
+            # that throws the residual far off (above STAGE_JUMP) is retried with the square root of the ratio
+            old_stretch = model.stretch
+            while True:
+                model.stretch = max(1.0, old_stretch / stage_ratio)
+                kr_e, dkr, A, r = residual(h)
+                rel, floor = measures(A, r, h, free_mask, fixed)
+                if rel <= STAGE_JUMP or stage_ratio < 1.1:
+                    break
+                stage_ratio = math.sqrt(stage_ratio)
+            if rel < STAGE_TOL:
+                stage_ratio = min(STAGE_RATIO, stage_ratio * stage_ratio)
             stats["stages"] += 1
             stage_it = 0
-            kr_e, dkr, A, r = residual(h)
-            rel, floor = measures(A, r, h, free_mask, fixed)
             if model.stretch == 1.0:
                 best = (rel, h.copy(), A, kr_e, face.copy(), floor, it)
         elif model.stretch == 1.0 and not changed and rel <= rtol:
@@ -422,14 +479,14 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
             break
         stage_it += 1
         if changed:
-            face = (face & ~release) | catch
+            face = new_face
             stats["active_set_changes"] += 1
-            fixed, values = fixed_set(face)
+            fixed, values = bcs.fixed_set(bc, face, y)
             h[fixed] = values
             free_mask[:] = True
             free_mask[fixed] = False
             kr_e, dkr, A, r = residual(h)
-        rn = np.abs(r[free_mask]).sum()
+        rn = merit(r, free_mask)
         b = -r
         b[fixed] = 0.0
         ta = time.perf_counter()
@@ -437,31 +494,91 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
             if NEWTON_KR_MIN > 0 and step_cap > 0:
                 dkr = dkr * (kr_e >= NEWTON_KR_MIN)[:, None]
             J = sysm.pinned(sysm.jacobian(A, h, dkr), free_mask)
-            dh = None
-            if lu is not None:
-                # inexact Newton: GMRES preconditioned with the LU of an earlier Jacobian
-                # rows scaled by their 1-norm, so the dry rows (kr_min) count as much as the wet ones
-                d = np.add.reduceat(np.abs(J.data), J.indptr[:-1])
-                eta = KRYLOV_RTOL
-                if step_cap > 0:
-                    # prolonged start: forcing term of Eisenstat and Walker (1996), choice 2
-                    prev = history[-2] if len(history) > 1 else np.inf
-                    eta = min(0.1, max(KRYLOV_RTOL, 0.9 * (rel / prev) ** 2)) if rel < prev else 0.1
-                x, k, ok = _gmres(lambda v: (J @ v) / d, lambda v: lu.solve(d * v), b / d, eta, KRYLOV_MAX)
-                stats["krylov_iterations"] += k
-                stats["linear_solves"] += k
-                if ok:
-                    dh = x
-                    stats["chord_steps"] += 1
-                if k > KRYLOV_REFRESH or not ok:
-                    lu = None                     # refactorise (now, or at the next step)
-            if dh is None:
-                if lu is None:
+            fresh = False
+
+            def directions():
+                """Candidate corrections, best first: GMRES with an earlier LU, the LU of this Jacobian, Picard."""
+                nonlocal lu, fresh
+                if lu is not None:
+                    # inexact Newton: GMRES preconditioned with the LU of an earlier Jacobian
+                    # rows scaled by their 1-norm, so the dry rows (kr_min) count as much as the wet ones
+                    d = np.add.reduceat(np.abs(J.data), J.indptr[:-1])
+                    eta = KRYLOV_RTOL
+                    if step_cap > 0:
+                        # prolonged start: forcing term of Eisenstat and Walker (1996), choice 2
+                        prev = history[-2] if len(history) > 1 else np.inf
+                        eta = min(0.1, max(KRYLOV_RTOL, 0.9 * (rel / prev) ** 2)) if rel < prev else 0.1
+                    x, k, ok = _gmres(lambda v: (J @ v) / d, lambda v: lu.solve(d * v), b / d, eta, KRYLOV_MAX)
+                    stats["krylov_iterations"] += k
+                    stats["linear_solves"] += k
+                    if k > KRYLOV_REFRESH or not ok:
+                        lu = None                     # refactorise (now, or at the next step)
+                    if ok:
+                        stats["chord_steps"] += 1
+                        yield "chord", x
+                if lu is None or not fresh:
+                    t1 = time.perf_counter()
                     lu = _lu(J)
+                    fresh = True
                     stats["factorizations"] += 1
-                    stats["factor_s"] += time.perf_counter() - ta
-                dh = lu.solve(b)
-                stats["linear_solves"] += 1
+                    stats["factor_s"] += time.perf_counter() - t1
+                    stats["linear_solves"] += 1
+                    yield "newton", lu.solve(b)
+                yield "picard", picard_step(A, h, free_mask, fixed)
+
+            gen = directions()
+            kind, dh = next(gen)
+            if model.stretch == 1.0 and not changed and rel <= max(FLOW_TOL, floor) <= FLOOR_MAX:
+                # flow residual small enough for the mass balance: converged when the next correction moves
+                # no head that carries flow (weighted by the relative conductivity) measurably
+                w = np.zeros(n)
+                np.maximum.at(w, mesh.cells.ravel(), np.repeat(kr_e, mesh.cells.shape[1]))
+                dmax = float(np.abs(w * dh).max())
+                if dmax <= HTOL * dH:
+                    converged = True
+                    reason = (f"relative flow residual {rel:.1e} <= {max(FLOW_TOL, floor):.0e} (round-off floor "
+                              f"{floor:.1e}) and next head correction x kr {dmax:.1e} m <= {HTOL:.0e} x {dH:.3g} m")
+                    stats["solve_s"] += time.perf_counter() - ta
+                    break
+            # backtracking line search on the 1-norm of the flow residual; a direction that does not reduce
+            # it is replaced by the next candidate (fresh LU, then a Picard step); when none does, the trial
+            # with the least residual is taken (the iteration must move to leave the point)
+            trial = None
+            # non-monotone acceptance (Grippo, Lampariello and Lucidi 1986, SIAM J. Numer. Anal. 23, 707-716):
+            # against the largest of the last NONMONOTONE residual norms, so that a step may leave a narrow valley
+            if changed or stage_it == 1:
+                recent_norms.clear()              # a new active set or kr: compare with this point only
+            recent_norms.append(rn)
+            ref = max(recent_norms[-NONMONOTONE:])
+            while True:
+                if kind != "picard" and step_cap > 0:
+                    dh = np.clip(dh, -step_cap * dH, step_cap * dH)
+                t = 1.0
+                ok = False
+                for _ in range(LINE_SEARCH_CUTS + 1):
+                    ht = h + t * dh
+                    if bounded:
+                        np.clip(ht, lo, hi, out=ht)
+                    rt = merit(residual(ht)[3], free_mask)
+                    if trial is None or rt < trial[0]:
+                        trial = (rt, ht)
+                    if rt <= (1.0 - 1e-4 * t) * ref:
+                        ok = True
+                        break
+                    t *= 0.5
+                    stats["line_search_cuts"] += 1
+                if ok:
+                    h = ht
+                    break
+                nxt = next(gen, None)
+                if nxt is None:
+                    h = trial[1]
+                    stats["failed_line_searches"] += 1
+                    break
+                kind, dh = nxt
+            log.debug("level %d nodes: it %d stretch %.3g rel %.3e floor %.1e %s t %.3g |dh| %.3g changed %s", n, it, model.stretch, rel,
+                      floor, kind, t, float(np.abs(dh).max()), changed)
+            gen.close()
         else:
             free = np.flatnonzero(free_mask)
             solver = linsolve.factorize(A[free][:, free].tocsr(), linear, tol)
@@ -471,60 +588,42 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
             hn[free] = solver.solve(bc.load[free] - A[free][:, fixed] @ h[fixed])
             stats["linear_solves"] += 1
             dh = hn - h
-        stats["solve_s"] += time.perf_counter() - ta
-        if model.stretch == 1.0 and not changed and rel <= max(FLOW_TOL, floor) <= FLOOR_MAX:
-            # flow residual small enough for the mass balance: converged when the next correction moves
-            # no head that carries flow (weighted by the relative conductivity) measurably
-            w = np.zeros(n)
-            np.maximum.at(w, mesh.cells.ravel(), np.repeat(kr_e, mesh.cells.shape[1]))
-            dmax = float(np.abs(w * dh).max())
-            if dmax <= HTOL * dH:
-                converged = True
-                reason = (f"relative flow residual {rel:.1e} <= {max(FLOW_TOL, floor):.0e} (round-off floor "
-                          f"{floor:.1e}) and next head correction x kr {dmax:.1e} m <= {HTOL:.0e} x {dH:.3g} m")
-                break
-        if step_cap > 0:
-            dh = np.clip(dh, -step_cap * dH, step_cap * dH)
-        if method == "newton":
-            # backtracking line search on the 1-norm of the flow residual
-            t = 1.0
-            for _ in range(8):
-                ht = h + t * dh
-                rt = np.abs(residual(ht)[3][free_mask]).sum()
-                if rt <= (1.0 - 1e-4 * t) * rn:
-                    break
-                t *= 0.5
-                stats["line_search_cuts"] += 1
-            h = ht
-        else:
             # adaptive under-relaxation: grow while the residual falls, cut when it rises
             omega = min(1.0, omega * 1.2) if rn < prev_norm else max(0.1, omega * 0.5)
             prev_norm = rn
             h = h + omega * dh
-        if model.stretch == 1.0 and best is not None and it - best[6] >= STALL_ITERATIONS:
-            break                                 # no gain for STALL_ITERATIONS iterations: stalled
+        stats["solve_s"] += time.perf_counter() - ta
+        if model.stretch == 1.0 and best is not None:
+            # iteration budget that follows progress: stalled when the best residual has not halved over the
+            # last W iterations, W = max(STALL_MIN, STALL_FRACTION x the iterations with the final kr so far)
+            best_log.append(best[0])
+            W = max(STALL_MIN, int(STALL_FRACTION * len(best_log)))
+            if len(best_log) > W and best_log[-1] > best_log[-1 - W] / STALL_PROGRESS:
+                stalled = True
+                break
     if not converged:
         if best is None:
             best = (rel, h.copy(), A, kr_e, face.copy(), floor, it)
         rel, h, A, kr_e, face, floor, _ = best
-        recent = changes[-STALL_ITERATIONS:]
+        recent = changes[-STALL_MIN:]
         if floor > FLOOR_MAX:
             reason = (f"the round-off floor of the flow residual ({floor:.1e}) is above {FLOOR_MAX:.0e}: the "
                       "conductivity contrast (with kr_min in dry zones) is too large for a reliable balance")
-        elif it >= budget:
+        elif not stalled:
             reason = f"iteration cap ({budget} left of solver.max_iterations) reached"
         elif sum(recent) >= len(recent) // 2:
             reason = (f"the seepage-face / drain active set kept changing ({sum(recent)} changes in the last "
                       f"{len(recent)} iterations)")
         else:
-            reason = f"the flow residual stalled for {STALL_ITERATIONS} iterations above its round-off floor {floor:.1e}"
+            reason = (f"the flow residual stopped falling (not cut by {STALL_PROGRESS:g}x in the last {W} iterations) above its "
+                      f"round-off floor {floor:.1e}")
     return _Outcome(h=h, face=face, A=A, kr=kr_e, converged=converged, reason=reason, iterations=it,
                     history=history, rel=float(rel), floor=float(floor))
 
 
 def solve_unconfined(section, mesh, Ke: np.ndarray, bc, h0: np.ndarray, face0: np.ndarray, *,
                      method: str = "newton", linear: str = "auto", tol: float = 1e-10,
-                     max_iterations: int = 60, rtol: float = 1e-9,
+                     max_iterations: int = 200, rtol: float = 1e-9,
                      continuation: bool = True, sequencing: bool = True, start=None) -> UnconfinedSolution:
     """Solve the saturated-unsaturated problem from the saturated head field h0.
 
@@ -546,6 +645,14 @@ def solve_unconfined(section, mesh, Ke: np.ndarray, bc, h0: np.ndarray, face0: n
     start : the result of :func:`saturated_start` (h0 and face0 are then not used): the coarsest level
         starts from its own saturated solve.
     """
+    with linsolve.one_thread():
+        return _solve_unconfined(section, mesh, Ke, bc, h0, face0, method=method, linear=linear, tol=tol,
+                                 max_iterations=max_iterations, rtol=rtol, continuation=continuation,
+                                 sequencing=sequencing, start=start)
+
+
+def _solve_unconfined(section, mesh, Ke, bc, h0, face0, *, method, linear, tol, max_iterations, rtol,
+                      continuation, sequencing, start) -> UnconfinedSolution:
     t0 = time.perf_counter()
     if start is not None and not (sequencing and method == "newton"):
         raise ValueError("a coarse saturated start needs Newton with mesh sequencing")
@@ -554,11 +661,25 @@ def solve_unconfined(section, mesh, Ke: np.ndarray, bc, h0: np.ndarray, face0: n
     if start is not None and levels[0].mesh.n_nodes != len(start[1]):
         raise ValueError("the coarse saturated start does not match the coarsest level")
     stats = {"factorizations": 0, "linear_solves": 0, "line_search_cuts": 0, "active_set_changes": 0,
-             "chord_steps": 0, "krylov_iterations": 0, "stages": 0, "factor_s": 0.0, "solve_s": 0.0}
+             "chord_steps": 0, "krylov_iterations": 0, "stages": 0, "factor_s": 0.0, "solve_s": 0.0,
+             "picard_steps": 0, "failed_line_searches": 0, "restarts": 0}
     act = np.zeros(mesh.n_nodes, bool)
     if start is None:
         act[bc.face_nodes[face0]] = True
     used, per_level, out, history = 0, [], None, []
+    def restart(lv):
+        """The finest level from its own saturated solution with the continuation in kr (as a mesh without
+        coarse levels is solved): the safety net when a prolonged start did not lead to convergence."""
+        fx, vals = bcs.fixed_set(lv.bc, lv.bc.face_start, lv.mesh.points[:, 1])
+        cache: dict = {}
+        h = bcs.solve_fixed(lv.sysm.assemble(np.ones(lv.mesh.n_elements)), lv.bc.load, fx, vals, linear, tol, cache)
+        stats["factorizations"] += cache["factorizations"]
+        stats["factor_s"] += cache["factor_s"]
+        stats["linear_solves"] += 1
+        stats["restarts"] += 1
+        return _iterate(section, lv, h, lv.bc.face_start.copy(), method=method, linear=linear, tol=tol, rtol=rtol,
+                        budget=max_iterations - used, continuation=continuation, stats=stats, step_cap=0.0)
+
     for k, lv in enumerate(levels):
         final = k == len(levels) - 1
         if out is None and start is not None:
@@ -585,21 +706,49 @@ def solve_unconfined(section, mesh, Ke: np.ndarray, bc, h0: np.ndarray, face0: n
         per_level.append({"nodes": int(lv.mesh.n_nodes), "order": int(lv.mesh.order), "iterations": out.iterations,
                           "factorizations": stats["factorizations"] - f0, "converged": out.converged,
                           "relative_residual": float(f"{out.rel:.3e}"), "time_s": round(time.perf_counter() - t1, 4)})
+        if k > 0 and not out.converged and out.floor <= FLOOR_MAX and max_iterations - used > 0:
+            # a level started from a prolonged solution did not converge: go to the finest level and start it
+            # afresh (its own saturated solution, continuation), with what is left of the budget
+            per_level[-1]["abandoned"] = True
+            lv = levels[-1]
+            t1 = time.perf_counter()
+            f0 = stats["factorizations"]
+            out = restart(lv)
+            used += out.iterations
+            history += out.history
+            per_level.append({"nodes": int(lv.mesh.n_nodes), "order": int(lv.mesh.order),
+                              "iterations": out.iterations, "factorizations": stats["factorizations"] - f0,
+                              "converged": out.converged, "relative_residual": float(f"{out.rel:.3e}"),
+                              "time_s": round(time.perf_counter() - t1, 4), "restart": True})
+            break
     converged = out.converged
     if not converged:
+        _, det = fem.jacobians(mesh.points, mesh.cells)
+        smallest = float(np.sqrt(2.0 * np.abs(det).min()))
+        if "cap" in out.reason:
+            advice = f"raise solver.max_iterations (now {max_iterations})"
+        else:
+            advice = (f"raise solver.max_iterations (now {max_iterations}), use a coarser local mesh size (the "
+                      f"smallest element is {smallest:.3g} m), or try \"solver\": {{\"nonlinear\": \"picard\"}}"
+                      if method == "newton" else
+                      f"raise solver.max_iterations (now {max_iterations}), use a coarser local mesh size (the "
+                      f"smallest element is {smallest:.3g} m), or the default \"nonlinear\": \"newton\"")
         log.warning("unconfined (phreatic-surface) iteration did not converge in %d iterations: %s; relative "
-                    "flow residual %.2e (target %.0e); the best iterate is returned, marked unconverged",
-                    used, out.reason, out.rel, rtol)
+                    "flow residual %.2e (target %.0e); the best iterate is returned, marked unconverged; to "
+                    "change: %s", used, out.reason, out.rel, rtol, advice)
     fixed = np.sort(np.concatenate([bc.head_nodes, bc.face_nodes[out.face]]))
     info = {
         "method": method, "iterations": used, "converged": bool(converged),
         "relative_residual": out.rel, "round_off_floor": float(f"{out.floor:.3e}"), "stop_reason": out.reason,
+        "advice": "" if converged else advice,
         "residual_history": [float(f"{v:.3e}") for v in history],
         "levels": per_level,
         "factorizations": stats["factorizations"], "linear_solves": stats["linear_solves"],
         "krylov_iterations": stats["krylov_iterations"],
         "line_search_cuts": stats["line_search_cuts"], "active_set_changes": stats["active_set_changes"],
         "chord_steps": stats["chord_steps"], "continuation_stages": stats["stages"],
+        "picard_steps": stats["picard_steps"], "failed_line_searches": stats["failed_line_searches"],
+        "restarts": stats["restarts"],
         "kr_model": {"default": "exponential", "delta_factor": DELTA_FACTOR, "kr_min": KR_MIN_DEFAULT,
                      "van_genuchten_zones": [section.zone_names[i] for i in np.flatnonzero(lv.model.vg)]},
         "dry_elements": int((out.kr < 0.5).sum()),

@@ -91,8 +91,6 @@ def test_the_graph_sees_deferred_imports():
 import pytest
 
 
-@pytest.mark.xfail(strict=True, reason="solver <-> unsaturated: the shared boundary-condition module lands with "
-                                       "the unconfined-solver work (issue 11)")
 def test_no_import_cycles():
     # the package root re-exports the public API and is imported by nothing inside the package
     g = {k: {w for w in v if w != "seepfe"} for k, v in import_graph().items()}

@@ -166,6 +166,15 @@ def test_nonconvergence_is_reported_not_silent(caplog, tmp_path):
     assert info["converged"] is False and r.solver_info["converged"] is False
     assert info["relative_residual"] > 1e-9
     assert any("did not converge" in m for m in caplog.messages)
+    # issue 11: the one-line message says what to change
+    msg = [m for m in caplog.messages if "did not converge" in m][0]
+    assert "\n" not in msg and "solver.max_iterations" in msg and "solver.max_iterations" in info["advice"]
+    caplog.clear()
+    with caplog.at_level(logging.WARNING, logger="seepfe"):
+        r = seepfe.solve(_rect_dam(size=0.5, max_iterations=12, nonlinear="picard"))
+    if not r.solver_info["converged"]:
+        msg = [m for m in caplog.messages if "did not converge" in m][0]
+        assert "solver.max_iterations" in msg
     # the CLI ends with exit code 3 for an unconverged solve
     import json
     p = tmp_path / "s.json"
@@ -198,7 +207,8 @@ def test_zoned_dam_contrast_1e4_anisotropic_shells_with_chimney_and_blanket_drai
     # bounded number of iterations, the balance and what the drains do.
     r = seepfe.solve(_zoned())
     info = r.solver_info["unconfined"]
-    assert info["converged"] and info["iterations"] <= 45
+    # bounded: the continuation in kr narrows adaptively (issue 11), most of these are cheap GMRES steps
+    assert info["converged"] and info["iterations"] <= 100
     assert r.balance["relative_error"] < 1e-6
     drains = r.drain_flows()
     assert drains["chimney"] > 0 and drains["blanket"] >= 0
@@ -269,3 +279,40 @@ def test_levee_blanket_permeability_variation_converges_with_mass_balance(k_blan
     assert r.boundary_flow("river") == pytest.approx(-r.boundary_flow("landside"), rel=1e-6)
     # the reported residual is the one the rule accepted
     assert info["relative_residual"] <= max(1e-7, info["round_off_floor"])
+
+
+def test_sweep_case_leaves_the_callers_thread_settings_alone(monkeypatch):
+    # issue 11: BLAS/OpenMP limited through threadpoolctl inside the case, never through the environment
+    import os
+
+    from seepfe.sweep import case
+    for v in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        monkeypatch.delenv(v, raising=False)
+    with case._one_thread():
+        pass
+    assert not any(v in os.environ for v in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"))
+    from threadpoolctl import threadpool_info
+    before = [p["num_threads"] for p in threadpool_info()]
+    from seepfe.linsolve import one_thread
+    with one_thread():
+        assert all(p["num_threads"] == 1 for p in threadpool_info())
+    assert [p["num_threads"] for p in threadpool_info()] == before
+
+
+def test_ldlt_and_superlu_agree_and_a_singular_matrix_is_one_clear_error():
+    import numpy as np
+    import scipy.sparse as sp
+
+    from seepfe import linsolve
+    from seepfe.errors import SolverError
+    n = 50
+    A = sp.diags([-np.ones(n - 1), 2.0 * np.ones(n), -np.ones(n - 1)], [-1, 0, 1], format="csr")
+    b = np.ones(n)
+    f = linsolve.factorize(A, "direct")
+    assert f.backend in ("qdldl-ldlt", "cholmod")
+    # exact 1D Poisson solution: x_i = (i + 1)(n - i) / 2 (discrete Laplacian with unit load, common practice)
+    i = np.arange(n)
+    assert np.allclose(f.solve(b), (i + 1) * (n - i) / 2.0, rtol=1e-10)
+    S = sp.csr_matrix(np.ones((3, 3)))
+    with pytest.raises(SolverError):
+        linsolve.factorize(S, "direct").solve(np.ones(3))

@@ -401,7 +401,10 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
     # the gradient the criteria apply to: across the top stratum where there is one (USACE practice,
     # i = h0 / z), else the recovered gradient at the surface
     igov = np.where(np.isfinite(blanket), blanket, gradient)
-    up = wet & (igov > 0)
+    # water leaves upward where the gradient is above the round-off floor of the field (1e-6 of the mean
+    # gradient across the section): a toe node shared with a drain reads 1e-12 of noise, not an exit
+    floor = 1e-6 * float(np.ptp(result.h)) / max(sec.extent, 1e-300)
+    up = wet & (igov > floor)
     with np.errstate(divide="ignore", invalid="ignore"):
         # inf: the check does not arise here; nan: it arises and cannot be computed (no unit weight)
         fs_heave = np.where(up, ic / np.where(up, igov, 1.0), np.inf)

@@ -14,7 +14,6 @@ import hashlib
 import json
 import logging
 import math
-import os
 import time
 
 
@@ -62,15 +61,12 @@ def _quiet_log():
 
 @contextlib.contextmanager
 def _one_thread():
-    """Limit BLAS/OpenMP pools to one thread for this solve (workers share the cores)."""
-    for v in _THREAD_VARS:
-        os.environ.setdefault(v, "1")
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:          # optional: the environment variables above then do the job
-        yield
-        return
-    with threadpool_limits(limits=1):
+    """Limit BLAS/OpenMP pools to one thread for this solve (workers share the cores); restored afterwards.
+
+    Through threadpoolctl only: the process environment (OMP/OPENBLAS/MKL_NUM_THREADS) is never changed,
+    so a sweep run in-process leaves the caller's settings as they were."""
+    from ..linsolve import one_thread
+    with one_thread():
         yield
 
 
