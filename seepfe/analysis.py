@@ -154,9 +154,49 @@ class Analysis:
             out.append("the solve did not converge: the field is the best iterate and must not be used")
         return out
 
+    @cached_property
+    def accuracy(self) -> dict:
+        """How accurate the numbers are: the discretisation error of the seepage quantity and of the
+        governing exit values, estimated from two coarser meshes (:func:`seepfe.accuracy.estimate`,
+        Richardson with the observed order where it can be found). Values at a singular corner (the
+        surface gradient at a toe) do not converge and are excluded, with the reason."""
+        from .accuracy import estimate
+        names = list(self.boundaries)
+        excluded = {"surface_gradient_max": "the surface gradient at a toe or cutoff tip is singular: it grows as "
+                                            "the mesh is refined and has no discretisation error to estimate"}
+        g = self.governing
+        if g["fs"] is not None and g["top_stratum_thickness_m"] is None and g["mode"] == "heave":
+            excluded["fs"] = ("the least FS rests on a surface gradient (no top stratum there), which may be "
+                              "singular: judge it by the values a little away from the toe")
+
+        def quantities(r):
+            bal = r.balance
+            out = {"q_m3_s_per_m": 0.5 * (bal["inflow_m3_s_per_m"] + bal["outflow_m3_s_per_m"])}
+            try:
+                exits = {n: exit_gradients(r, n) for n in names}
+            except Exception:                     # a coarse mesh too coarse for a boundary: no exit values
+                return out
+            gv = _governing(exits, r)
+            if gv["fs"] is not None and "fs" not in excluded:
+                out["fs"] = gv["fs"]
+            tg = [ex.governing["top_stratum_gradient_max"] for ex in exits.values()]
+            tg = [v for v in tg if v is not None]
+            if tg:
+                out["top_stratum_gradient_max"] = max(tg)
+            return out
+
+        if not self.result.solver_info.get("converged", True):
+            return {"estimates": {}, "excluded": {"all": "the solve did not converge"}}
+        est = estimate(self.result, quantities)
+        return {"estimates": est, "excluded": excluded,
+                "method": "two coarser meshes (the nested parents where the mesh was split, else re-meshed at 2x "
+                          "and 4x every size); Richardson extrapolation with the observed order (Celik et al. 2008)"}
+
     # ------------------------------------------------------------------ outputs
-    def to_dict(self) -> dict:
-        """summary.json: plain data, SI units (validates against :class:`seepfe.records.Summary`)."""
+    def to_dict(self, accuracy: bool = True) -> dict:
+        """summary.json: plain data, SI units (validates against :class:`seepfe.records.Summary`).
+        ``accuracy``: include the discretisation-error estimates (two coarser solves; a sweep case leaves
+        them out)."""
         r = self.result
         sec = r.section
         d = {
@@ -183,12 +223,16 @@ class Analysis:
             "notes": self.notes,
             "caution": CAUTION,
         }
+        if accuracy:
+            d["accuracy"] = self.accuracy
+        from .export import provenance
+        d["provenance"] = provenance()
         return _finite_or_none(_plain(d))
 
     def record(self, points: dict | None = None, warnings: list | None = None, time_s: float = 0.0) -> dict:
         """A sweep case record (:class:`seepfe.records.CaseRecord`): a projection of :meth:`to_dict`,
         with the heads at named points {name: [x, y]} (m) and the exit profiles."""
-        d = self.to_dict()
+        d = self.to_dict(accuracy=False)
         r = self.result
         pts = points or {}
         heads = r.head(np.array(list(pts.values()), float).reshape(-1, 2)) if pts else []
@@ -271,7 +315,19 @@ class Analysis:
                 rows.append([f"{m.title}: {label}", _f(hand, ".4g"), _f(fe, ".4g"), unit])
         if rows:
             L.append(table("hand methods beside the FE", ["method: quantity", "hand", "FE", "unit"], rows))
+            for m in self.hand:                   # what a checker needs to redo each by hand
+                if m.applies and m.inputs:
+                    L.append(f"  {m.title}: inputs: " + "; ".join(_input_text(k, v, u) for k, v in m.inputs.items()
+                                                                  if v["value"] is not None))
         L += na
+        acc = self.accuracy.get("estimates", {})
+        if acc:
+            lab = {"q_m3_s_per_m": "seepage q", "fs": "least FS", "top_stratum_gradient_max": "top-stratum gradient"}
+            parts = [f"{lab.get(k, k)} {100 * v['relative']:.2g} %" for k, v in acc.items()
+                     if v.get("relative") is not None]
+            if parts:
+                L.append("accuracy (estimated discretisation error, from two coarser meshes): " + ", ".join(parts)
+                         + "; the surface gradient at a toe is singular and has none")
         for w in sec.warnings:
             L.append(f"warning: {w}")
         for note in self.notes + [n for ex in self.exits.values() for n in ex.notes] + \
@@ -326,6 +382,18 @@ def _governing(exits: dict, result) -> dict:
         out["verdict"] = "pass"
         out["why"] = per[out["boundary"]]["why"] if out["boundary"] else " | ".join(g["why"] for g in per.values())
     return out
+
+
+def _input_text(name: str, v: dict, u) -> str:
+    """'L1 200 m' / 'riverside_end open' for the inputs line of a hand method, in the display units."""
+    val, unit = v["value"], v.get("unit", "")
+    if isinstance(val, str):
+        return f"{name} {val}"
+    dim = {"m": "length", "m/s": "conductivity", "m3/s per m": "flow", "kN/m3": "unit_weight"}.get(unit)
+    if dim is not None and u is not None:
+        f = u.factor(dim)
+        return f"{name.removesuffix('_m').removesuffix('_m_s').removesuffix('_kN_m3')} {val / f:.4g} {u.label(dim)}"
+    return f"{name} {val:.4g}" + (f" {unit}" if unit and unit != "-" else "")
 
 
 def _shown(key: str, v: float, u) -> str:

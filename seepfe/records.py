@@ -173,6 +173,13 @@ class Summary(BaseModel):
     remedies: list[dict[str, Any]]
     flow_net: Optional[dict[str, Any]] = None
     notes: list[str]
+    accuracy: Optional[dict[str, Any]] = Field(
+        None, description="estimated discretisation error of the seepage quantity and the governing exit values: "
+                          "estimates {name: {value, error_estimate, relative, observed_order, method, ...}}, "
+                          "excluded {name: why}, method")
+    provenance: Optional[dict[str, Any]] = Field(
+        None, description="versions of seepfe, gmsh, numpy, scipy and Python that wrote the file (the same file "
+                          "meshes identically only within one gmsh version)")
     caution: str
 
 

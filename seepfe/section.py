@@ -24,7 +24,6 @@ import numpy as np
 from pydantic import BaseModel, ValidationError
 from shapely.geometry import Polygon
 
-from . import geometry
 from .conductivity import conductivity_tensor
 from .errors import SectionError
 from .schema import BoundarySpec, MaterialSpec, SectionSpec
@@ -48,7 +47,7 @@ class Section:
     outline: Polygon = field(repr=False)
     extent: float = 0.0                       # largest side of the bounding box, m
     tol: float = 0.0                          # geometric tolerance, m
-    graph: geometry.Graph = field(default=None, repr=False)
+    graph: "geometry.Graph" = field(default=None, repr=False)   # seepfe.geometry.Graph
     remedies: tuple = field(default=(), repr=False)   # per remedy: what it became (seepfe.remedies.apply)
     boundary_parts: dict = field(default_factory=dict, repr=False)   # a boundary remedies split: its pieces
     units: Units = SI                         # the file's units (values above are SI); results are shown in them
@@ -408,6 +407,7 @@ def _check_water_levels(spec: SectionSpec, outline, blines: list, polys: list, t
 
 
 def _build(spec: SectionSpec, data: dict, label: str, notes: tuple = (), parts: dict | None = None) -> Section:
+    from . import geometry        # scipy and the geometry checks only once the file has passed its schema
     # names
     names = [z.name for z in spec.zones]
     for n in names:

@@ -57,8 +57,8 @@ def add_solve_args(p, out: bool = True) -> None:
 def solve_section(args):
     """Load the section, turn --size into m, solve; log the stages. Returns the Result."""
     from ..section import load_section
+    sec = load_section(args.section)        # a bad file fails here, before the solver is imported
     from ..solver import solve
-    sec = load_section(args.section)
     log.info("loaded %s: %d materials, %d zones, %d boundaries (units %s)", sec.source, len(sec.spec.materials),
              len(sec.spec.zones), len(sec.spec.boundaries), sec.units.name)
     size = None if getattr(args, "size", None) is None else args.size * sec.units.factor("length")

@@ -23,10 +23,10 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
+    res = solve_section(args)              # load first: a bad file answers before the heavy imports
     from ..analysis import analyse
     from ..output import atomic_dir, write_json
     from ..plot import figure_set, save_figure
-    res = solve_section(args)
     a = analyse(res)
     net = a.flow_net
     written = []

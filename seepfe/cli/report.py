@@ -17,11 +17,11 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
+    res = solve_section(args)              # load first: a bad file answers before the heavy imports
     from ..analysis import analyse
     from ..output import atomic_dir, write_analysis
     from ..report import write_pdf, write_report
     from .solve import finish
-    res = solve_section(args)
     a = analyse(res)
     with atomic_dir(args.out) as tmp:
         written = write_analysis(a, tmp)

@@ -17,9 +17,9 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
+    res = solve_section(args)              # load first: a bad file answers before the heavy imports
     from ..analysis import analyse
     from ..output import atomic_dir, write_analysis
-    res = solve_section(args)
     a = analyse(res)
     with atomic_dir(args.out) as tmp:
         written = write_analysis(a, tmp)
