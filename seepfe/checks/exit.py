@@ -175,7 +175,8 @@ def governing_of(ex: ExitChecks) -> dict:
                    x_m=float(ex.x[i]), y_m=float(ex.y[i]), distance_from_toe_m=float(ex.distance_from_toe[i]),
                    top_stratum_thickness_m=t if math.isfinite(t) else None)
     ig = np.asarray(ex.exit_gradient, float)
-    for key, arr, mask in (("exit_gradient", ig, ex.wet), ("surface_gradient", ex.gradient, ex.wet),
+    leaves = ~np.isinf(ex.fs_heave)          # water leaves upward there (a heave check arises)
+    for key, arr, mask in (("exit_gradient", ig, leaves), ("surface_gradient", ex.gradient, leaves),
                            ("top_stratum_gradient", ex.blanket_gradient, np.ones(n, bool))):
         a = np.where(mask & np.isfinite(arr), arr, -np.inf)
         if n and np.isfinite(a).any():
@@ -430,6 +431,13 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
         notes.append(f"zone '{zname}': {what}, where a check needs it; the verdict along '{name}' is "
                      "'not checked' unless a computed value fails")
     dist = direction * (x - toe_x)
+    sideways = wet & (normal_gradient > floor) & ~(igov > floor)
+    if sideways.any():
+        k = np.flatnonzero(sideways)
+        notes.append(f"water leaves '{name}' through a slope at x = {x[k].min():.2f} to {x[k].max():.2f} m (outward "
+                     f"gradient up to {normal_gradient[k].max():.3g}) without rising through it: the heave and uplift "
+                     "checks (vertical) do not cover sloughing of a slope face; check its stability with these pore "
+                     "pressures")
     if not has.any():
         notes.append("no top stratum found under this boundary (the soil never turns markedly more pervious "
                      f"below the surface, contrast {c.contrast:g}): no uplift check")
@@ -446,8 +454,8 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
                          "stratum or by the values a little away from the end")
     tsm = (f"to the depth given ({depth:g} m)" if depth is not None else
            f"the zones named in checks.top_stratum ({', '.join(c.top_stratum)})" if c.top_stratum is not None else
-           f"down to where the soil turns markedly more pervious: the interface with the largest ratio of the "
-           f"vertical k below to the series k of the layers above, at least {c.contrast:g}")
+           f"down to the first interface where the vertical k below is at least {c.contrast:g} times the series k "
+           "of the layers above (interfaces under embankment or berm zones do not count)")
     crit = {"fs_heave": cr.fs_heave, "fs_uplift": cr.fs_uplift, "allowable_gradient": cr.allowable_gradient,
             "source": "USACE ETL 1110-2-569 (2005) / EM 1110-2-1913 (2000), values from memory, unless set in "
                       "the section file"}
@@ -475,9 +483,9 @@ def _stratum_notes(sec, cols, has, z, x, dist, name) -> list[str]:
                    "is a modelling sliver, name the top stratum in checks.top_stratum")
     if cols.rivals is not None and (cols.rivals[has] > 0).any():
         k = np.flatnonzero(has & (cols.rivals > 0))
-        out.append(f"under x = {x[k].min():.2f} to {x[k].max():.2f} m more than one interface passes the contrast "
-                   f"({sec.spec.checks.contrast:g}): the sharpest was taken as the base of the top stratum; name the "
-                   "zones in checks.top_stratum if another is meant")
+        out.append(f"under x = {x[k].min():.2f} to {x[k].max():.2f} m the soil turns more pervious more than once: "
+                   "the shallowest interface passing the contrast was taken as the base of the top stratum, and a "
+                   "deeper one is sharper still; name the zones in checks.top_stratum if that one is meant")
     return out
 
 

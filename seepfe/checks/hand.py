@@ -480,12 +480,13 @@ def _column_props(sec, x, y):
 
 
 def _end_condition(st: _Setting, x_from: float, direction: float, top_sub: float, bot_sub: float, c: float,
-                   water_side: str) -> tuple[float, str, str]:
+                   water_side: str, r_toe: float) -> tuple[float, str, str]:
     """Length and condition of a blanket beyond a toe: (L m, 'open' | 'blocked' | 'semi-infinite', why).
 
-    Walks the ground from ``x_from`` in ``direction``: where the top stratum ends over the substratum
-    and the ground there lies under an exit or a head, the substratum is open to water at that
-    distance; where the blanket reaches the model's end, the end face over the substratum decides:
+    Walks the ground from ``x_from`` in ``direction``: where the top stratum ends over the substratum,
+    or its resistance to vertical flow (sum t / k_v) falls below a tenth of ``r_toe`` (that at the toe: a
+    pit, a ditch, a thin spot), the substratum is open to water at that distance; where the blanket
+    reaches the model's end, the end face over the substratum decides:
     a head boundary there opens it, a no-flow end blocks it (the FE sees the same), and a no-flow end
     beyond 3/c acts as semi-infinite.
     """
@@ -499,6 +500,19 @@ def _end_condition(st: _Setting, x_from: float, direction: float, top_sub: float
     if gone.any():
         L = abs(float(xs[np.argmax(gone)]) - x_from)
         return L, "open", f"the top stratum ends {L:.4g} m from the toe, where the substratum meets the surface"
+    R = _resistance(sec, cols, len(xs))
+    thin = R < 0.1 * r_toe
+    if thin.any():
+        k = int(np.argmax(thin))
+        L = abs(float(xs[k]) - x_from)
+        return L, "open", (f"the top stratum's resistance falls below a tenth of that at the toe {L:.4g} m out (x = "
+                           f"{xs[k]:.4g} m: a pit, a ditch or a thin spot), taken as open there")
+    lo, hi = float(np.nanmin(np.r_[R, r_toe])), float(np.nanmax(np.r_[R, r_toe]))
+    if lo < 0.5 * hi:
+        k = int(np.nanargmin(R))
+        raise _NotUniform(f"the {water_side} top stratum is not uniform: its resistance to vertical flow (thickness / "
+                          f"k) varies by a factor {hi / lo:.2g}, least at x = {xs[k]:.4g} m (a ditch, a pit, a "
+                          "thinning); the theory takes one uniform blanket")
     L = abs(edge - x_from)
     pts, lab = _ring(sec)
     a, b = pts, np.roll(pts, -1, axis=0)
@@ -517,6 +531,22 @@ def _end_condition(st: _Setting, x_from: float, direction: float, top_sub: float
     return L, "blocked", (f"the blanket runs {L:.4g} m to the model's no-flow end at x = {edge:.4g} m, within 3/c = "
                           f"{SEMI_INFINITE_CL / c:.4g} m: the substratum is closed there in the model (and here); if "
                           f"the real blanket runs on, lengthen the model on the {water_side} side")
+
+
+class _NotUniform(Exception):
+    """A blanket whose resistance varies too much along its length for the theory."""
+
+
+def _resistance(sec, cols, n: int) -> np.ndarray:
+    """(n,) resistance of the top stratum to vertical flow, sum(t / k_v), s; nan where there is none."""
+    kv = sec.zone_tensors()[:, 1, 1]
+    base = cols.base[cols.point]
+    t = np.clip(cols.top - np.maximum(cols.bottom, base), 0.0, None)
+    t = np.where(np.isfinite(base), t, 0.0)
+    R = np.zeros(n)
+    np.add.at(R, cols.point, t / kv[cols.zone])
+    R[~np.isfinite(cols.base)] = np.nan
+    return R
 
 
 def _riverside_toe(st: _Setting, sgn: float, yt: float) -> tuple[float | None, str]:
@@ -596,13 +626,17 @@ def _blanket(st: _Setting) -> HandMethod:
     d = 0.5 * (land["d"] + river["d"]) if has_river_blanket else land["d"]
     kf = 0.5 * (land["kf"] + river["kf"]) if has_river_blanket else land["kf"]
     c3 = math.sqrt(land["kb"] / (kf * land["zb"] * d))
-    L3, end3, why3 = _end_condition(st, xt, sgn, top_sub, bot_sub, c3, "landside")
-    if has_river_blanket:
-        c1 = math.sqrt(river["kb"] / (kf * river["zb"] * d))
-        L1, end1, why1 = _end_condition(st, xr, -sgn, river["base"], river["bottom"], c1, "riverside")
-        zbr, kbr = river["zb"], river["kb"]
-    else:
-        L1, end1, why1, zbr, kbr = 0.0, "none", "no riverside top stratum: the river meets the substratum at the toe", 0.0, 0.0
+    try:
+        L3, end3, why3 = _end_condition(st, xt, sgn, top_sub, bot_sub, c3, "landside", land["zb"] / land["kb"])
+        if has_river_blanket:
+            c1 = math.sqrt(river["kb"] / (kf * river["zb"] * d))
+            L1, end1, why1 = _end_condition(st, xr, -sgn, river["base"], river["bottom"], c1, "riverside",
+                                            river["zb"] / river["kb"])
+            zbr, kbr = river["zb"], river["kb"]
+        else:
+            L1, end1, why1, zbr, kbr = 0.0, "none", "no riverside top stratum: the river meets the substratum at the toe", 0.0, 0.0
+    except _NotUniform as e:
+        return not_applicable("blanket_theory", str(e))
     bt = hm.blanket_theory(H, d, kf, zb_land=land["zb"], kb_land=land["kb"], L3=L3, end3=end3, L2=L2, zb_river=zbr,
                            kb_river=kbr, L1=L1, end1=end1, gamma_buoyant_land=land.get("gamma_b"), gamma_w=sec.gamma_w)
     # the FE values beside it, at the same point; q: all that enters at the river's head (its bed and any
@@ -614,6 +648,12 @@ def _blanket(st: _Setting) -> HandMethod:
     ic = bt.get("i_critical", float("nan"))
     fs_fe = ic / i_fe if i_fe > 0 else math.inf
     notes = []
+    subk = [float(sec.zone_tensors()[z_, 1, 1]) for z_ in land.get("sub_zones", [])]
+    if subk and max(subk) >= c.contrast * min(subk):
+        names = ", ".join(dict.fromkeys(sec.zone_names[z_] for z_ in land["sub_zones"]))
+        notes.append(f"blanket theory: the substratum is layered ({names}; vertical k {min(subk):.2g} to "
+                     f"{max(subk):.2g} m/s): the theory neglects the head lost across it (Dupuit), so its toe head "
+                     "can differ from the FE's; the FE describes the layers")
     emb = [sec.zone_names[z] for z in range(len(sec.polygons))
            if sec.zone_tensors()[z, 1, 1] > land["kb"] and shapely.Polygon(sec.polygons[z]).centroid.y > yt]
     if emb:

@@ -9,11 +9,11 @@ pervious substratum. Its base is found, at each point, in this order:
 1. ``checks.top_stratum`` (zone names): the base of the deepest of those zones in the column (with
    everything above it, an embankment's fill included);
 2. ``checks.top_stratum_depth``: that depth below the surface;
-3. otherwise the interface where the column turns markedly more pervious: of the interfaces where
-   the vertical conductivity below is at least ``contrast`` times the equivalent vertical
-   conductivity of everything above (thickness / sum(t / k_v), layers in series), the one with the
-   largest such ratio. A sliver of embankment fill over a clay blanket over sand is thus taken with
-   the blanket (fill/blanket may pass the contrast, blanket/sand passes it far more), never alone.
+3. otherwise the first interface, going down, where the column turns markedly more pervious: the
+   vertical conductivity below is at least ``contrast`` times the equivalent vertical conductivity
+   of everything above (thickness / sum(t / k_v), layers in series). An interface under a zone built
+   on the ground (an embankment, a berm: :func:`embankment_zones`) does not count, so a sliver of
+   embankment fill over a clay blanket over sand is taken with the blanket, never alone.
 """
 
 from __future__ import annotations
@@ -23,7 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 import shapely
 
-__all__ = ["Columns", "columns", "saturated_unit_weight", "critical_gradient"]
+__all__ = ["Columns", "columns", "saturated_unit_weight", "critical_gradient", "embankment_zones"]
 
 
 def saturated_unit_weight(m, gamma_w: float) -> float:
@@ -56,8 +56,8 @@ class Columns:
     point : (L,) index of the surface point; zone : (L,) zone index; top, bottom : (L,) elevations, m.
     base : (n,) elevation of the base of the top stratum, m (nan: none); thickness : (n,) m (nan: none);
     n_top : (n,) number of layers (from the top) in the top stratum; how : (n,) 'names', 'depth',
-    'contrast' or ''; rivals : (n,) number of other interfaces that also passed the contrast with a
-    ratio within a factor of 10 of the chosen one (layered columns: the choice is worth a look).
+    'contrast' or ''; rivals : (n,) number of deeper interfaces whose drop is sharper again by the
+    contrast (layered columns: the choice is worth a look).
     """
 
     point: np.ndarray
@@ -166,25 +166,45 @@ def columns(section, x: np.ndarray, y: np.ndarray, contrast: float | None = None
         keq = cum_t / cum_r                               # series (harmonic) k of everything above the interface
         ratio = np.zeros(len(point))
         ratio[:-1] = np.where(nxt[:-1], k[1:] / keq[:-1], 0.0)
-        cand = np.flatnonzero(nxt & (ratio >= contrast))
+        # an embankment or berm zone (built on the ground) never ends the top stratum on its own: a sliver
+        # of fill over the blanket is taken with the blanket under it
+        emb = np.isin(zone, embankment_zones(section))
+        cand = np.flatnonzero(nxt & (ratio >= contrast) & ~emb)
         if len(cand):
-            oo = np.lexsort((-ratio[cand], point[cand]))
-            cand = cand[oo]
-            pc = point[cand]
+            pc = point[cand]                           # candidates come sorted by point, then from the top
             head = np.r_[True, pc[1:] != pc[:-1]]
-            j = cand[head]
+            j = cand[head]                             # the shallowest interface of each point
             pu = point[j]
             base[pu] = bottom[j]
             n_top[pu] = j - np.searchsorted(point, pu) + 1
             how[pu] = "contrast"
-            # rivals: other interfaces within a factor of 10 of the sharpest (a layered column worth a look)
-            best = np.repeat(ratio[j], np.diff(np.r_[np.flatnonzero(head), len(cand)]))
-            close = ratio[cand] >= 0.1 * best
-            rivals[pu] = np.bincount(pc[close], minlength=n)[pu] - 1
+            # rivals: a deeper interface with a drop sharper again by the contrast (a layered column worth a look)
+            first = np.repeat(ratio[j], np.diff(np.r_[np.flatnonzero(head), len(cand)]))
+            # (only where the first drop is itself modest, under contrast^2: a 20x clay/silt step over sand)
+            sharper = (ratio[cand] >= contrast * first) & (first < contrast * contrast)
+            rivals[pu] = np.bincount(pc[sharper], minlength=n)[pu]
     thickness = y - base
     thickness[~np.isfinite(base)] = np.nan
     return Columns(point=point, zone=zone, top=top, bottom=bottom, base=base, thickness=thickness,
                    n_top=n_top, how=how, rivals=rivals)
+
+
+def embankment_zones(section) -> list[int]:
+    """Zones built on the ground (an embankment, a berm): those that reach neither end of the model (natural
+    strata run to at least one) and lie wholly above the natural ground, taken as the lower of the
+    top-surface elevations at the model's two ends (untouched by the works)."""
+    x0, y0, x1, y1 = section.outline.bounds
+    eps = 1e-6 * section.extent
+    xs = np.array([x0 + eps, x1 - eps])
+    lines = shapely.linestrings(np.stack([np.stack([xs, np.full(2, y1 + 1.0)], 1),
+                                          np.stack([xs, np.full(2, y0 - 1.0)], 1)], 1))
+    ends = shapely.bounds(shapely.intersection(lines, section.outline))[:, 3]
+    if not np.isfinite(ends).all():
+        return []
+    ground = float(ends.min())
+    t = section.length_tol
+    return [i for i, p in enumerate(section.polygons) if float(p[:, 1].min()) >= ground - t
+            and float(p[:, 0].min()) > x0 + t and float(p[:, 0].max()) < x1 - t]
 
 
 def stratum_weight(section, cols: Columns, n: int) -> np.ndarray:
