@@ -30,7 +30,7 @@ from .about import CAUTION, __version__
 
 __all__ = ["result_lines", "write_lines", "copy_inputs", "provenance", "LINE_FILES"]
 
-LINE_FILES = ["phreatic_line.csv", "flow_lines.csv", "equipotentials.csv", "lines.geojson", "lines.dxf"]
+LINE_FILES = ["phreatic_line.csv", "flow_lines.csv", "equipotentials.csv", "lines.geojson"]
 
 
 def provenance() -> dict:
@@ -100,9 +100,10 @@ def _csv(path: Path, items: list, value_col: str, dim: str, units) -> None:
     _write_csv(path, display_columns(cols, units if units is not None else SI))
 
 
-def write_lines(analysis, folder, units=None) -> list[str]:
-    """The phreatic line, flow lines and equipotentials as CSV, GeoJSON and DXF into an existing folder;
-    returns the names written. ``units``: the file's (default: the section's)."""
+def write_lines(analysis, folder, units=None, dxf: bool = False) -> list[str]:
+    """The phreatic line, flow lines and equipotentials as CSV and GeoJSON (and DXF with ``dxf``: about a
+    second more, for a CAD drawing) into an existing folder; returns the names written. ``units``: the
+    file's (default: the section's)."""
     folder = Path(folder)
     units = units if units is not None else analysis.result.section.units
     lines = result_lines(analysis)
@@ -129,12 +130,14 @@ def write_lines(analysis, folder, units=None) -> list[str]:
           "flow_net": {"head_drop_m": net.dh, "flow_per_channel_m3_s_per_m": net.dpsi},
           "caution": CAUTION, "features": feats}
     (folder / "lines.geojson").write_text(json.dumps(gj, indent=1) + "\n", encoding="utf-8")
+    if not dxf:
+        return list(LINE_FILES)
     from .dxf import write_lines_dxf
     write_lines_dxf(folder / "lines.dxf", {"phreatic line": [it["points"] / L for it in lines["phreatic_line"]],
                                            "flow lines": [it["points"] / L for it in lines["flow_lines"]],
                                            "equipotentials": [it["points"] / L for it in lines["equipotentials"]]},
                     units.length)
-    return list(LINE_FILES)
+    return list(LINE_FILES) + ["lines.dxf"]
 
 
 # --------------------------------------------------------------------------- inputs

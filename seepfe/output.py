@@ -79,9 +79,9 @@ def safe_name(name: str) -> str:
     return "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in name)
 
 
-def write_analysis(analysis, folder: Path) -> list[str]:
+def write_analysis(analysis, folder: Path, dxf: bool = False) -> list[str]:
     """summary.json (``analysis.to_dict()``), the field files and one checks_<boundary>.csv per exit
-    surface into an existing folder; returns the names written."""
+    surface into an existing folder (and lines.dxf with ``dxf``); returns the names written."""
     folder = Path(folder)
     write_json(folder / "summary.json", analysis.to_dict())
     write_result(analysis.result, folder)
@@ -91,7 +91,7 @@ def write_analysis(analysis, folder: Path) -> list[str]:
         ex.to_csv(folder / f, units=analysis.result.section.units)
         names.append(f)
     from .export import copy_inputs, write_lines
-    names += write_lines(analysis, folder)
+    names += write_lines(analysis, folder, dxf=dxf)
     names += copy_inputs(folder, analysis.result.section)
     return names
 

@@ -47,7 +47,7 @@ def test_phreatic_line_has_zero_pressure_and_files_are_consistent(tmp_path):
     sec = seepfe.load_section(ROOT / "sections" / "levee_us.json")
     res = seepfe.solve(sec, order=1, size=10.0)
     a = analyse(res)
-    files = write_lines(a, tmp_path)
+    files = write_lines(a, tmp_path, dxf=True)
     assert sorted(files) == sorted(p.name for p in tmp_path.iterdir())
     ph = np.genfromtxt(tmp_path / "phreatic_line.csv", delimiter=",", names=True)
     p = res.interpolate(res.pressure_head, np.column_stack([ph["x_m"], ph["y_m"]]))
@@ -74,7 +74,7 @@ def test_phreatic_line_has_zero_pressure_and_files_are_consistent(tmp_path):
 def test_solve_copies_the_input_and_writes_the_lines(tmp_path, capsys):
     src = ROOT / "sections" / "levee_blanket.json"
     out = tmp_path / "o"
-    assert main(["solve", str(src), "--out", str(out), "--order", "1"]) == 0
+    assert main(["solve", str(src), "--out", str(out), "--order", "1", "--dxf"]) == 0
     assert (out / "input" / "levee_blanket.json").read_bytes() == src.read_bytes()
     for f in ("phreatic_line.csv", "flow_lines.csv", "equipotentials.csv", "lines.geojson", "lines.dxf"):
         assert (out / f).stat().st_size > 0

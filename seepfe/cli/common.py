@@ -52,6 +52,9 @@ def add_solve_args(p, out: bool = True) -> None:
     add_section_args(p, out)
     p.add_argument("--linear", choices=("auto", "direct", "amg"), default=None,
                    help="linear solver (default: the file's solver.linear, auto)")
+    if out:
+        p.add_argument("--dxf", action="store_true",
+                       help="also write the phreatic line, flow lines and equipotentials as lines.dxf (CAD)")
 
 
 def solve_section(args):

@@ -24,7 +24,7 @@ def run(args) -> int:
     from .solve import finish
     a = analyse(res)
     with atomic_dir(args.out) as tmp:
-        written = write_analysis(a, tmp)
+        written = write_analysis(a, tmp, dxf=getattr(args, 'dxf', False))
         html = write_report(a, tmp)
         if args.pdf:
             write_pdf(html, tmp / "report.pdf")

@@ -22,7 +22,7 @@ def run(args) -> int:
     from ..output import atomic_dir, write_analysis
     a = analyse(res)
     with atomic_dir(args.out) as tmp:
-        written = write_analysis(a, tmp)
+        written = write_analysis(a, tmp, dxf=getattr(args, 'dxf', False))
     return finish(a, args.out, ", ".join(written))
 
 
