@@ -55,7 +55,7 @@ def conditions(section, mesh) -> Conditions:
     """Turn the section's boundaries into node sets on this mesh."""
     n = mesh.n_nodes
     y = mesh.points[:, 1]
-    tol = section.tol * 10
+    tol = section.head_tol            # a node above the water level by more than this is dry
     head = np.full(n, np.nan)
     face = np.zeros(n, bool)
     start = np.zeros(n, bool)

@@ -85,7 +85,7 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
     y = mesh.points[:, 1]
     face_fixed = bc.face_start.copy()
     cache: dict = {}
-    htol = 10 * section.tol
+    htol = section.head_tol
     converged = False
     history = []
     it = 0
@@ -102,7 +102,7 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
         if it == 1:
             first = (h, face_fixed.copy())
         if (it == 1 and not SETTLE_FACES_FIRST and sspec.phreatic == "auto"
-                and unsaturated.is_partly_dry(mesh, h, 10 * section.tol)):
+                and unsaturated.is_partly_dry(mesh, h, section.head_tol)):
             break          # partly dry: the faces are iterated inside the unconfined solve below
         if len(bc.face_nodes) == 0:
             converged = True
@@ -116,7 +116,7 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
             break
         face_fixed = new_face
     unconf = None
-    if start is not None or (sspec.phreatic == "auto" and unsaturated.is_partly_dry(mesh, h, 10 * section.tol)):
+    if start is not None or (sspec.phreatic == "auto" and unsaturated.is_partly_dry(mesh, h, section.head_tol)):
         # part of the section lies above the phreatic surface: saturated-unsaturated solve (issue 4)
         unconf = unsaturated.solve_unconfined(
             section, mesh, Ke, bc, None if start is not None else h, face_fixed, method=sspec.nonlinear,

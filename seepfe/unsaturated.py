@@ -266,7 +266,7 @@ def saturated_start(section, mesh, linear: str = "direct", tol: float = 1e-10):
     fixed, values = bcs.fixed_set(b, b.face_start, y)
     cache: dict = {}
     h = bcs.solve_fixed(A, b.load, fixed, values, linear, tol, cache)
-    if not is_partly_dry(m, h, 10 * section.tol):
+    if not is_partly_dry(m, h, section.head_tol):
         return None
     return hier, h, b.face_start.copy(), cache
 
@@ -384,7 +384,7 @@ def _iterate(section, lv: _Level, h: np.ndarray, face: np.ndarray, *, method: st
     y = mesh.points[:, 1]
     n = mesh.n_nodes
     fn = bc.face_nodes
-    htol = 10 * section.tol
+    htol = section.head_tol
     # head scale for the head-change criterion: the range of the prescribed heads and outlet elevations
     dH = max(float(np.ptp(np.concatenate([bc.head_values, y[fn]]))), htol)
     model.stretch = 1.0
