@@ -20,7 +20,7 @@ import time
 __all__ = ["run_case", "case_hash", "CASE_FORMAT", "from_json_float"]
 
 #: bump when the record format or the reduction changes, so old cached cases are not reused
-CASE_FORMAT = 2
+CASE_FORMAT = 3
 _THREAD_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "VECLIB_MAXIMUM_THREADS",
                 "NUMEXPR_NUM_THREADS")
 
