@@ -156,10 +156,11 @@ def field_figure(result, quantity: str = "total_head", window=None, title: str |
                    "pore_pressure": "Pore-water pressure"}[quantity]
         fr = base.frame(win, title=title or default, units=sec.units, exaggeration=exaggeration)
         ax = fr.ax
-        tri = base.triangulation(result.mesh)
+        tri = base.triangulation(result.mesh, win)
         cmap = field_cmap()
         norm = mcolors.BoundaryNorm(bounds, cmap.N)
-        cf = ax.tricontourf(tri, v, levels=bounds, cmap=cmap, norm=norm, zorder=1)
+        cf = ax.tricontourf(base.triangulation(result.mesh, win, corners=True), v, levels=bounds, cmap=cmap, norm=norm,
+                            zorder=1)
         cf.set_rasterized(True) if hasattr(cf, "set_rasterized") else None
         handles = []
         if len(lv):
@@ -243,7 +244,7 @@ def flow_net_figure(result, window=None, title: str | None = None, n_drops: int 
         ax = fr.ax
         colours = base.draw_zones(ax, sec, lighten=0.8)
         wh = base.draw_water(ax, sec, win)
-        tri = base.triangulation(result.mesh)
+        tri = base.triangulation(result.mesh, win)
         eq = net.equipotential_levels
         fl = net.flow_line_levels
         from matplotlib.lines import Line2D

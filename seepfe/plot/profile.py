@@ -16,6 +16,8 @@ safety (heave, uplift) against the required ones, same shading.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from .style import FIG_WIDTH_IN, INK, MUTED, OKABE_ITO, style, tint
@@ -110,9 +112,17 @@ def exit_gradient_figure(profile, title: str | None = None, required_fs: float |
     shade = tint(red, 0.8)
     with style():
         rows = 3 if thick is not None else 2
-        fig = Figure(figsize=(FIG_WIDTH_IN, 6.4 if rows == 3 else 5.4), layout="constrained")
+        # fixed margins in inches (no layout engine: it would lay the figure out again at every save);
+        # the legend's band below the x label is sized from the number of entries (two columns)
+        n_leg = 4 + (ib is not None) + (fsu is not None and np.isfinite(fsu).any()) + bool(stretches)
+        legend_in = 0.2 + 0.155 * math.ceil(n_leg / 2)
+        panels_in = 4.6 if rows == 3 else 3.8
+        top_in, xlab_in = 0.35, 0.5
+        H = top_in + panels_in + xlab_in + legend_in
+        fig = Figure(figsize=(FIG_WIDTH_IN, H))
         FigureCanvasAgg(fig)
-        gs = fig.add_gridspec(rows, 1, height_ratios=[1.3, 1.0, 0.5][:rows])
+        gs = fig.add_gridspec(rows, 1, height_ratios=[1.3, 1.0, 0.5][:rows], hspace=0.12, left=0.72 / FIG_WIDTH_IN,
+                              right=1 - 0.15 / FIG_WIDTH_IN, top=1 - top_in / H, bottom=(xlab_in + legend_in) / H)
         a1 = fig.add_subplot(gs[0])
         a2 = fig.add_subplot(gs[1], sharex=a1)
         a3 = fig.add_subplot(gs[2], sharex=a1) if rows == 3 else None
@@ -220,8 +230,9 @@ def exit_gradient_figure(profile, title: str | None = None, required_fs: float |
             handles.append(Patch(color=shade, label=f"fails the criteria: {where}{more} {Lu} from the toe, "
                                                     f"{tot / fL:.1f} {Lu} in all"))
         method = _get(profile, ["method"])
-        fig.legend(handles=handles, loc="outside lower left", ncol=2, borderaxespad=0.0, columnspacing=1.6,
-                   title=f"gradients: {method}" if method else None, title_fontsize=6.5, alignment="left")
+        fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.72 / FIG_WIDTH_IN, legend_in / H), ncol=2,
+                   borderaxespad=0.0, columnspacing=1.6, title=f"gradients: {method}" if method else None,
+                   title_fontsize=6.5, alignment="left")
     fig.seepfe_failing = stretches
     return fig
 

@@ -338,6 +338,7 @@ def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts
                 for t in rep.targets:
                     files += report.plot_target(tmp, t, f"{t['parameter']} ({t['unit']})",
                                                 report._label(t["quantity"]),
+                                                1.0 if t["quantity"] == "verdict" else
                                                 float(t["condition"].split()[-1]))
         fr = rep.fragility
         if fr is not None:
