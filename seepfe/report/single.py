@@ -386,14 +386,28 @@ def no_flow_pieces(sec) -> list[str]:
         if g.is_empty or g.length <= 2 * tol:
             continue
         c = np.asarray(g.coords)
-        if np.ptp(c[:, 0]) <= tol:
-            side = "left end" if abs(c[0, 0] - x0) <= tol else "right end" if abs(c[0, 0] - x1) <= tol else "vertical face"
-            out.append(f"{side} x = {c[0, 0]:.2f} m, from y = {c[:, 1].min():.2f} m to {c[:, 1].max():.2f} m")
-        elif np.ptp(c[:, 1]) <= tol:
-            side = "base" if abs(c[0, 1] - y0) <= tol else "level edge"
-            out.append(f"{side} y = {c[0, 1]:.2f} m, from x = {c[:, 0].min():.2f} m to {c[:, 0].max():.2f} m")
-        else:
-            out.append(f"the outline from ({c[0, 0]:.2f} m, {c[0, 1]:.2f} m) to ({c[-1, 0]:.2f} m, {c[-1, 1]:.2f} m)")
+        # split into straight runs (the outline's vertices are few: a loop over them is cheap)
+        runs, cur = [], [c[0], c[1]]
+        for p in c[2:]:
+            d0, d1 = cur[-1] - cur[-2], p - cur[-1]
+            if abs(d0[0] * d1[1] - d0[1] * d1[0]) <= tol * max(np.hypot(*d0), np.hypot(*d1)):
+                cur.append(p)
+            else:
+                runs.append(np.asarray(cur))
+                cur = [cur[-1], p]
+        runs.append(np.asarray(cur))
+        for r in runs:
+            if np.hypot(*(r[-1] - r[0])) <= 2 * tol:
+                continue
+            if np.ptp(r[:, 0]) <= tol:
+                side = ("left end" if abs(r[0, 0] - x0) <= tol else "right end" if abs(r[0, 0] - x1) <= tol
+                        else "vertical face")
+                out.append(f"{side} x = {r[0, 0]:.2f} m, from y = {r[:, 1].min():.2f} m to {r[:, 1].max():.2f} m")
+            elif np.ptp(r[:, 1]) <= tol:
+                side = "base" if abs(r[0, 1] - y0) <= tol else "level edge"
+                out.append(f"{side} y = {r[0, 1]:.2f} m, from x = {r[:, 0].min():.2f} m to {r[:, 0].max():.2f} m")
+            else:
+                out.append(f"from ({r[0, 0]:.2f} m, {r[0, 1]:.2f} m) to ({r[-1, 0]:.2f} m, {r[-1, 1]:.2f} m)")
     return out
 
 
