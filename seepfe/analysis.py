@@ -348,7 +348,7 @@ def _governing(exits: dict, result) -> dict:
     per = {n: ex.governing for n, ex in exits.items()}
     out = {"fs": None, "mode": None, "boundary": None, "x_m": None, "distance_from_toe_m": None,
            "top_stratum_thickness_m": None, "exit_gradient_max": None, "exit_gradient_x_m": None,
-           "exit_gradient_boundary": None, "fails_within_m_of_toe": None, "verdict": "not checked", "why": "",
+           "exit_gradient_boundary": None, "fails_within_m_of_toe": None, "failing_length_m": None, "verdict": "not checked", "why": "",
            "criteria": None}
     if exits:
         out["criteria"] = dict(next(iter(exits.values())).criteria)
@@ -366,6 +366,7 @@ def _governing(exits: dict, result) -> dict:
     unknown = [n for n, g in per.items() if g["verdict"] == "not checked"]
     if fails:
         out["fails_within_m_of_toe"] = max(per[n]["fails_within_m_of_toe"] for n in fails)
+        out["failing_length_m"] = sum(per[n]["failing_length_m"] or 0.0 for n in fails)
     if not result.solver_info.get("converged", True):
         out["verdict"] = "not checked"
         out["why"] = ("the solve did not converge: the field is not a solution, so no verdict can rest on it "

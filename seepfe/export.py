@@ -141,6 +141,22 @@ def write_lines(analysis, folder, units=None, dxf: bool = False) -> list[str]:
 
 
 # --------------------------------------------------------------------------- inputs
+def input_bytes(section) -> tuple[str, bytes]:
+    """The section file as read: (file name, bytes). Byte for byte when the file still has the content the
+    run was made with; otherwise (changed since, or given as a dict) the data the run used, as JSON."""
+    from .section import _hash
+    src = Path(section.source)
+    name = src.name if section.source not in ("<dict>", "") and src.suffix else "section.json"
+    try:
+        if src.is_file():
+            raw = src.read_bytes()
+            if _hash(json.loads(raw.decode("utf-8-sig"))) == section.input_hash:
+                return name, raw
+    except (OSError, ValueError):
+        pass
+    return name, (json.dumps(section.data, indent=2, ensure_ascii=False) + "\n").encode("utf-8")
+
+
 def copy_inputs(folder, section, more: dict | None = None) -> list[str]:
     """Copy the section file (and ``more``: {name in input/: path or dict}) into ``folder/input/`` as read;
     returns the names written (relative to folder).
@@ -148,22 +164,10 @@ def copy_inputs(folder, section, more: dict | None = None) -> list[str]:
     The section file is copied byte for byte when its content still has the hash the run was made with;
     otherwise (changed since, or given as a dict) the data the run used is written as JSON.
     """
-    from .section import _hash
     folder = Path(folder)
     (folder / "input").mkdir(exist_ok=True)
     written = []
-    src = Path(section.source)
-    name = src.name if section.source not in ("<dict>", "") and src.suffix else "section.json"
-    raw = None
-    try:
-        if src.is_file():
-            raw = src.read_bytes()
-            if _hash(json.loads(raw.decode("utf-8-sig"))) != section.input_hash:
-                raw = None
-    except (OSError, ValueError):
-        raw = None
-    if raw is None:
-        raw = (json.dumps(section.data, indent=2, ensure_ascii=False) + "\n").encode("utf-8")
+    name, raw = input_bytes(section)
     (folder / "input" / name).write_bytes(raw)
     written.append(f"input/{name}")
     for n, v in (more or {}).items():

@@ -10,7 +10,7 @@ A string that starts with ``=`` is an expression. The language is numbers, decla
 names, ``+ - * / **``, unary minus and plus, parentheses and the functions ``min``, ``max``,
 ``abs`` and ``sqrt``. It is parsed here by a recursive-descent parser and evaluated on floats; it is
 never handed to Python's ``eval``. Parameters may use other parameters (no cycles). The free-text
-keys ``title`` and ``description`` are never read as expressions.
+keys ``title`` and ``description`` and the ``project`` block (the report's title block) are never read as expressions.
 
 API for sweeps and searches:
 
@@ -40,7 +40,7 @@ __all__ = ["resolve", "with_values", "parameter_values", "evaluate", "parse", "F
 #: the only functions an expression may call: name -> (min args, max args or None)
 FUNCTIONS = {"min": (1, None), "max": (1, None), "abs": (1, 1), "sqrt": (1, 1)}
 #: keys whose string values are free text, never expressions
-FREE_TEXT_KEYS = frozenset({"title", "description"})
+FREE_TEXT_KEYS = frozenset({"title", "description", "project"})   # "project": the title block, all text
 MAX_LENGTH = 400        # characters in one expression
 MAX_DEPTH = 50          # nesting of parentheses / unary operators
 

@@ -70,7 +70,10 @@ class Governing(BaseModel):
                                                 "one, else at the surface) where water leaves, m/m")
     exit_gradient_x_m: _num = Field(description="x of the largest exit gradient, m")
     exit_gradient_boundary: Optional[str] = Field(None, description="exit surface of the largest exit gradient")
-    fails_within_m_of_toe: _num = Field(None, description="distance from the toe of the farthest failing point, m")
+    fails_within_m_of_toe: _num = Field(None, description="distance from the toe of the far end of the failing "
+                                                          "stretches, m (docs/checks.md: failing stretches)")
+    failing_length_m: _num = Field(None, description="total length of the failing stretches over the checked exit "
+                                                     "surfaces, m (horizontal; the same number the figures shade)")
     verdict: Literal["pass", "fail", "not checked"] = Field(description="against the section's criteria")
     why: str = Field(description="why the verdict, in words")
     criteria: Optional[Criteria] = None
@@ -95,7 +98,11 @@ class ExitGoverning(BaseModel):
     surface_gradient_x_m: _num
     top_stratum_gradient_max: _num = Field(description="largest mean gradient across the top stratum, m/m")
     top_stratum_gradient_x_m: _num
-    fails_within_m_of_toe: _num
+    fails_within_m_of_toe: _num = Field(description="distance from the toe of the far end of the failing stretches, m")
+    failing_length_m: _num = Field(None, description="total horizontal length of the failing stretches, m")
+    failing_stretches_m: list[list[float]] = Field(
+        default_factory=list, description="[from, to] distances from the toe of each stretch that fails the criteria, "
+                                          "each run of failing check points extended half-way to its neighbours, m")
     verdict: Literal["pass", "fail", "not checked"]
     why: str
 

@@ -18,7 +18,7 @@ from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validat
 
 from .units import K_RANGE, Dim
 
-__all__ = ["MaterialSpec", "ZoneSpec", "BoundarySpec", "BarrierSpec", "RefineSpec", "MeshSpec", "WaterSpec",
+__all__ = ["ProjectSpec", "MaterialSpec", "ZoneSpec", "BoundarySpec", "BarrierSpec", "RefineSpec", "MeshSpec", "WaterSpec",
            "SectionSpec", "K_RANGE", "Length", "PositiveLength", "Point", "Conductivity", "Flux", "UnitWeight"]
 
 
@@ -272,12 +272,37 @@ class ChecksSpec(BaseModel):
     criteria: CriteriaSpec = Field(default_factory=CriteriaSpec)
 
 
+_Text = Optional[Annotated[str, Field(max_length=200)]]
+
+
+class ProjectSpec(BaseModel):
+    """The title block of the report: who the analysis is for and who prepared and checked it. Every key
+    is optional; a key left out prints as a blank line to fill in by hand."""
+
+    model_config = _CFG
+    project: _Text = Field(None, description="project name, as on the drawings")
+    document: _Text = Field(None, description="document or calculation number")
+    reach: _Text = Field(None, description="levee reach, dam or structure the section belongs to")
+    station: _Text = Field(None, description="station (chainage) of the section, as written on the drawings, "
+                                             "e.g. '4+150'")
+    datum: _Text = Field(None, description="vertical datum of the elevations and heads, e.g. 'local datum, m'")
+    prepared_by: _Text = Field(None, description="who prepared the analysis")
+    checked_by: _Text = Field(None, description="who checked it")
+    date: _Text = Field(None, description="date of the issue, as it should print")
+    revision: _Text = Field(None, description="revision mark, e.g. 'A' or '0'")
+    structure: Optional[Literal["levee", "dam"]] = Field(
+        None, description="what the section is: 'levee' (riverside and landside, landside toe) or 'dam' (upstream "
+                          "and downstream, downstream toe); default: 'dam' when the title or a boundary name says "
+                          "dam, reservoir, upstream or downstream, else 'levee'")
+
+
 class SectionSpec(BaseModel):
     """A whole section file."""
 
     model_config = ConfigDict(extra="forbid", strict=True, frozen=True,
                               json_schema_extra={"title": "seepfe section"})
     title: str = ""
+    project: Optional[ProjectSpec] = Field(None, description="title block of the report (docs/report.md)")
     materials: Annotated[dict[str, MaterialSpec], Field(min_length=1)]
     zones: Annotated[list[ZoneSpec], Field(min_length=1)]
     boundaries: list[BoundarySpec] = Field(default_factory=list)

@@ -69,21 +69,18 @@ def test_report_parses_and_embeds_every_figure(report_dir):
     doc = _Doc()
     doc.feed(html)
     doc.close()
-    pngs = sorted((report_dir / "figures").glob("*.png"))
     svgs = sorted((report_dir / "figures").glob("*.svg"))
-    assert len(pngs) == len(svgs) >= 6
-    assert len(doc.imgs) == len(pngs)
+    assert len(svgs) >= 6
+    assert len(doc.imgs) == len(svgs)
     embedded = set()
     for im in doc.imgs:
         src = im["src"]
-        assert src.startswith("data:image/png;base64,")
+        assert src.startswith("data:image/svg+xml;base64,")        # vector: sharp when printed
         data = base64.b64decode(src.split(",", 1)[1], validate=True)
-        assert data[:8] == b"\x89PNG\r\n\x1a\n"
-        w, h = int.from_bytes(data[16:20], "big"), int.from_bytes(data[20:24], "big")
-        assert w > 600 and h > 200                                  # print-size, not a thumbnail
+        assert b"<svg" in data[:600]
         assert im.get("alt")
         embedded.add(data)
-    assert embedded == {p.read_bytes() for p in pngs}               # every figure written is in the report
+    assert embedded == {p.read_bytes() for p in svgs}               # every figure written is in the report
     assert not re.search(r"(src|href)=\"(?!data:|#)", html)         # no external resource
 
 
@@ -104,7 +101,7 @@ def test_report_has_governing_values_version_hash_and_caution(result, report_dir
     assert gov["fs"] == pytest.approx(np.nanmin(fs[np.isfinite(fs)]))
     assert f"{gov['fs']:.2f}" in text
     assert f"Verdict: {gov['verdict']} ." in text and gov["why"] in text
-    assert "exit_gradient_landside.png" in {p.name for p in (report_dir / "figures").iterdir()}
+    assert "exit_gradient_landside.svg" in {p.name for p in (report_dir / "figures").iterdir()}
     # inputs: every material with its k, every boundary, the mesh size
     for name in ("fill", "blanket", "sand", "river", "landside"):
         assert name in text

@@ -35,7 +35,7 @@ from shapely.geometry import LineString
 from ..errors import SectionError
 from . import recovery, strata
 
-__all__ = ["ExitChecks", "exit_gradients", "default_boundaries", "infer_toe", "governing_of"]
+__all__ = ["ExitChecks", "exit_gradients", "default_boundaries", "infer_toe", "governing_of", "failing_stretches"]
 
 
 @dataclass(eq=False)
@@ -149,6 +149,31 @@ def _where(ex: ExitChecks, i: int) -> str:
     return f"x = {ex.x[i]:.2f} m ({ex.distance_from_toe[i]:+.1f} m from the toe)"
 
 
+def failing_stretches(ex: ExitChecks) -> list[tuple[float, float]]:
+    """The stretches of an exit surface that fail the criteria, as (from, to) distances from the toe, m.
+
+    One definition, used by the tables, summary.json and the figures alike: the check points are taken
+    in their order along the boundary; each run of consecutive failing points is one stretch, extended
+    half-way to the neighbouring passing points (each point stands for the surface half-way to its
+    neighbours), and to the boundary's end where the run reaches it. Distances are horizontal, from
+    the toe, positive away from the embankment (negative on the slope). The true ends lie within half
+    a check-point spacing of these (``checks.spacing`` adds points).
+    """
+    n = len(ex.x)
+    if n == 0:
+        return []
+    o = np.argsort(ex.s, kind="stable")
+    d = np.asarray(ex.distance_from_toe, float)[o]
+    f = ~np.asarray(ex.passes, bool)[o]
+    if not f.any():
+        return []
+    mids = np.concatenate([[d[0]], 0.5 * (d[1:] + d[:-1]), [d[-1]]])
+    edges = np.diff(np.concatenate([[0], f.astype(int), [0]]))
+    starts, ends = np.flatnonzero(edges == 1), np.flatnonzero(edges == -1)
+    out = [(float(min(mids[a], mids[b])), float(max(mids[a], mids[b]))) for a, b in zip(starts, ends)]
+    return sorted(out)
+
+
 def governing_of(ex: ExitChecks) -> dict:
     """The governing values along one exit surface, with the verdict and why (plain data, no nan or inf).
 
@@ -156,7 +181,8 @@ def governing_of(ex: ExitChecks) -> dict:
     governs there ("heave" or "uplift"); ``exit_gradient_max`` the largest exit gradient (the one the
     criteria apply to) where water leaves; ``surface_gradient_max`` and ``top_stratum_gradient_max``
     the largest of each; ``fails_within_m_of_toe`` the distance from the toe of the farthest failing
-    point. ``verdict`` is "fail" where a computed value fails the criteria, else "not checked" where a
+    end of the failing stretches (:func:`failing_stretches`), ``failing_length_m`` their total length and
+``failing_stretches_m`` the stretches themselves. ``verdict`` is "fail" where a computed value fails the criteria, else "not checked" where a
     check arises that cannot be computed, else "pass"; ``why`` says which and where.
     """
     cr = ex.criteria
@@ -184,7 +210,10 @@ def governing_of(ex: ExitChecks) -> dict:
             out[f"{key}_max"], out[f"{key}_x_m"] = float(a[k]), float(ex.x[k])
         else:
             out[f"{key}_max"], out[f"{key}_x_m"] = None, None
-    out["fails_within_m_of_toe"] = float(np.max(ex.distance_from_toe[fail])) if fail.any() else None
+    stretches = failing_stretches(ex)
+    out["fails_within_m_of_toe"] = max(b for a, b in stretches) if stretches else None
+    out["failing_length_m"] = float(sum(b - a for a, b in stretches)) if stretches else None
+    out["failing_stretches_m"] = [[a, b] for a, b in stretches]
     req = f"required {cr['fs_heave']:g} (heave), {cr['fs_uplift']:g} (uplift)"
     if fail.any():
         what = []

@@ -11,11 +11,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .style import FIG_WIDTH_IN, INK, KIND_COLOUR, MUTED, zone_colours
+from .style import FIG_WIDTH_IN, INK, KIND_COLOUR, MUTED, OKABE_ITO, tint, zone_colours
 
 __all__ = ["Frame", "frame", "draw_zones", "draw_zone_edges", "draw_boundaries", "draw_mesh",
            "material_handles", "fmt_k", "fmt_sci", "window_of", "detail_window", "triangulation",
-           "contour_pieces", "boundary_label", "length_axis"]
+           "contour_pieces", "boundary_label", "length_axis", "draw_water", "exaggeration_for", "structure_kind",
+           "sides"]
 
 _LEFT, _RIGHT, _TOP, _XLAB = 0.72, 0.18, 0.42, 0.44       # inches
 
@@ -31,6 +32,7 @@ class Frame:
     height_in: float
     ax_box: tuple            # left, bottom, width, height in inches
     cursor_in: float         # where the next item below the axes starts, inches from the bottom
+    exaggeration: float = 1.0
 
     def _renderer(self):
         return self.fig.canvas.get_renderer()
@@ -41,7 +43,9 @@ class Frame:
     def _anchor(self, gap_in):
         if not getattr(self, "_started", False):      # labels drawn under the section push the stack down
             self._started = True
-            self.cursor_in = min(self.cursor_in, self.ax.get_tightbbox(self._renderer()).y0 / self.fig.dpi)
+            r = self._renderer()
+            lows = [t.get_window_extent(r).y0 / self.fig.dpi for t in self.ax.texts if t.get_visible()]
+            self.cursor_in = min([self.cursor_in] + [v - 0.05 for v in lows])
         return (self.ax_box[0] / self.width_in, (self.cursor_in - gap_in) / self.height_in)
 
     def legend(self, handles, ncol: int = 2, gap_in: float = 0.06, **kw):
@@ -70,41 +74,80 @@ class Frame:
         cb.set_label(label)
         cb.outline.set_linewidth(0.4)
         cb.ax.tick_params(labelsize=6.5, length=2)
-        bb = cax.get_tightbbox(self._renderer())
-        self.cursor_in = bb.y0 / self.fig.dpi
+        # the bar, its tick labels (6.5 pt) and its label (8.5 pt) below it: measured once, not re-laid out
+        self.cursor_in = y * self.height_in - h - (2 + 6.5 * 1.25 + 4 + 8.5 * 1.25) / 72.0
         return cb
 
 
 def window_of(section, pad: float = 0.04) -> tuple:
-    """The drawing window (x0, x1, y0, y1) of the whole section with a margin, m."""
+    """The drawing window (x0, x1, y0, y1) of the whole section with a margin, m: a little to each side
+    and below, more above (for the labels of the boundaries)."""
     x0, y0, x1, y1 = section.outline.bounds
-    s = max(x1 - x0, y1 - y0)
-    return (x0 - pad * 0.5 * s, x1 + pad * 0.5 * s, y0 - pad * 0.3 * (y1 - y0) - 0.01 * s,
-            y1 + max(0.14 * (y1 - y0), 0.035 * s))
+    W, H = x1 - x0, y1 - y0
+    return (x0 - pad * 0.5 * W, x1 + pad * 0.5 * W, y0 - 0.05 * H, y1 + 0.3 * H)
 
 
 def detail_window(section, max_ratio: float = 4.5):
-    """A closer window on the part of a long, flat section where the zones change (the embankment
-    and its toes), or None when the whole section already reads well (width / height <= max_ratio).
+    """A closer window on the part of a long, flat section where the structure is, or None when the
+    whole section already reads well (width / height <= max_ratio).
 
-    The window spans the zones narrower than half the section, widened by the section's depth on
-    each side, at the section's full height.
+    The window spans every zone that rises above the ground at the section's ends (the embankment or
+    dam, berms, drains on it), every zone narrower than a quarter of the section (cutoffs, drains,
+    filters) and every barrier (sheet piles, cutoff walls), widened by the section's depth on each
+    side, at the section's full height: it contains what its labels name.
     """
     x0, y0, x1, y1 = section.outline.bounds
     W, Hs = x1 - x0, y1 - y0
     if W / max(Hs, 1e-300) <= max_ratio:
         return None
-    # zones narrower than a quarter of the section (embankment, berm, cutoff, drains), not the long
-    # layers (which remedies may cut into long pieces)
-    narrow = [p for p in section.polygons if np.ptp(p[:, 0]) < 0.25 * W]
-    if not narrow:
+    ring = np.asarray(section.outline.exterior.coords)
+    tol = section.length_tol
+    ground = max(ring[np.abs(ring[:, 0] - x0) <= tol, 1].max(), ring[np.abs(ring[:, 0] - x1) <= tol, 1].max())
+    parts = [p for p in section.polygons if p[:, 1].max() > ground + tol or np.ptp(p[:, 0]) < 0.25 * W]
+    parts += [np.asarray(b.polyline, float) for b in (getattr(section.spec, "barriers", None) or [])]
+    if not parts:
         return None
-    a = min(p[:, 0].min() for p in narrow) - Hs
-    b = max(p[:, 0].max() for p in narrow) + Hs
+    a = min(p[:, 0].min() for p in parts) - Hs
+    b = max(p[:, 0].max() for p in parts) + Hs
     a, b = max(a, x0), min(b, x1)
     if b - a > 0.8 * W:
         return None
     return (a, b, y0 - 0.04 * Hs, y1 + 0.16 * Hs)
+
+
+def exaggeration_for(window, max_ratio: float = 3.2) -> float:
+    """The vertical exaggeration that keeps a window no wider than ``max_ratio`` times its drawn height:
+    1 where it already is, else the smallest of 2, 2.5, 4, 5, 8, 10, 15, 20, 25, 40, 50, 100 that does."""
+    x0, x1, y0, y1 = window
+    r = (x1 - x0) / max(y1 - y0, 1e-300)
+    if r <= max_ratio:
+        return 1.0
+    for ve in (2, 2.5, 4, 5, 8, 10, 15, 20, 25, 40, 50, 100):
+        if r / ve <= max_ratio:
+            return float(ve)
+    return 100.0
+
+
+def structure_kind(section) -> tuple[str, str]:
+    """("levee" or "dam", how it was decided): ``project.structure`` when the file says; else "dam" where the
+    title or a boundary's name uses the words of a dam (dam, reservoir, upstream, downstream), else "levee"."""
+    proj = getattr(section.spec, "project", None)
+    if proj is not None and getattr(proj, "structure", None):
+        return proj.structure, "project.structure"
+    import re
+    words = " ".join([section.spec.title or ""] + [b.name for b in section.spec.boundaries]).lower()
+    if re.search(r"\b(dam|dams|reservoir|upstream|downstream)\b", words):
+        return "dam", "the words of the title and boundary names (set project.structure to say)"
+    return "levee", "the default (set project.structure to say)"
+
+
+def sides(section) -> dict:
+    """The words for the two sides: {"wet": "riverside"/"upstream", "dry": "landside"/"downstream",
+    "toe": "landside toe"/"downstream toe", "structure": "levee"/"dam"}."""
+    kind, _ = structure_kind(section)
+    if kind == "dam":
+        return {"wet": "upstream", "dry": "downstream", "toe": "downstream toe", "structure": "dam"}
+    return {"wet": "riverside", "dry": "landside", "toe": "landside toe", "structure": "levee"}
 
 
 def length_axis(axis, units=None) -> str:
@@ -126,7 +169,8 @@ def length_axis(axis, units=None) -> str:
     return units.length
 
 
-def frame(window, max_height_in: float = 6.5, title: str | None = None, units=None) -> Frame:
+def frame(window, max_height_in: float = 6.5, title: str | None = None, units=None,
+          exaggeration: float | None = 1.0) -> Frame:
     """A figure whose section axes has exactly the aspect of the window (no wasted space).
 
     Parameters
@@ -134,15 +178,18 @@ def frame(window, max_height_in: float = 6.5, title: str | None = None, units=No
     window : (x0, x1, y0, y1) in m.
     title : the figure title, drawn at the top left.
     units : seepfe.units.Units the axes are labelled in (default m).
+    exaggeration : vertical exaggeration (1: true scale; None: :func:`exaggeration_for` the window).
+        Anything but 1 is stated at the top right of the drawing.
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
     x0, x1, y0, y1 = window
+    ve = exaggeration_for(window) if exaggeration is None else float(exaggeration)
     aw = FIG_WIDTH_IN - _LEFT - _RIGHT
-    ah = aw * (y1 - y0) / (x1 - x0)
+    ah = aw * ve * (y1 - y0) / (x1 - x0)
     if ah > max_height_in:
         ah = max_height_in
-        aw = ah * (x1 - x0) / (y1 - y0)
+        aw = ah * (x1 - x0) / (ve * (y1 - y0))
     if title and len(title) > 70:
         import textwrap
         title = "\n".join(textwrap.wrap(title, 70))
@@ -155,21 +202,30 @@ def frame(window, max_height_in: float = 6.5, title: str | None = None, units=No
     ax = fig.add_axes([_LEFT / W, _XLAB / H, aw / W, ah / H])
     ax.set_xlim(x0, x1)
     ax.set_ylim(y0, y1)
-    ax.set_aspect("equal", adjustable="box")
+    ax.set_aspect(ve, adjustable="box")
     u = length_axis(ax.xaxis, units)
     length_axis(ax.yaxis, units)
     ax.set_xlabel(f"distance x ({u})")
     ax.set_ylabel(f"elevation y ({u})")
     if title:
         ax.set_title(title, pad=12)
+    if ve != 1.0:
+        ax.text(1.0, 1.0, f"vertical exaggeration {ve:g}\u00d7", transform=ax.transAxes, ha="right", va="bottom",
+                fontsize=7, color=INK, fontweight="bold")
     fr = Frame(fig, ax, W, H, (_LEFT, _XLAB, aw, ah), 0.0)
-    # the stack starts under the x-axis label
-    fr.cursor_in = ax.get_tightbbox(fr._renderer()).y0 / fig.dpi
+    fr.exaggeration = ve
+    # the stack starts under the x-axis label: the tick labels and the label fill the _XLAB band
+    fr.cursor_in = 0.0
     return fr
 
 
+_SUP = str.maketrans("-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079")
+
+
 def fmt_sci(v: float, digits: int = 1) -> str:
-    """A number in mathtext scientific notation: 2.5e-05 -> '2.5 x 10^-5'."""
+    """A number in scientific notation with Unicode superscripts: 2.5e-05 -> '2.5×10⁻⁵'.
+
+    Plain text (no mathtext): fast to lay out, and a '$' in a name can never start math mode."""
     if v == 0:
         return "0"
     e = int(math.floor(math.log10(abs(v))))
@@ -178,7 +234,7 @@ def fmt_sci(v: float, digits: int = 1) -> str:
         m, e = m / 10, e + 1
     if e in (-1, 0, 1, 2):
         return f"{v:.{max(digits + 1, e + 1)}g}" if e >= 0 else f"{v:.{digits + 1}g}"
-    return rf"${m:.{digits}f}\times10^{{{e}}}$"
+    return f"{m:.{digits}f}\u00d710{str(e).translate(_SUP)}"
 
 
 def fmt_k(mat, units=None) -> str:
@@ -260,19 +316,19 @@ def draw_boundaries(ax, section, labels: bool = True, window=None, zorder: float
         kinds.setdefault(b.kind, col)
         if not labels:
             continue
-        a, c = line[:-1], line[1:]
-        # clip segments to the window for the label position
-        ca = np.clip(a, [x0, y0], [x1, y1])
-        cc = np.clip(c, [x0, y0], [x1, y1])
-        L = np.linalg.norm(cc - ca, axis=1)
-        if L.max() <= 0:
+        seg = _visible_segments(line, (x0, x1, y0, y1))
+        if not seg:
             continue
+        # the longest visible segment, measured as drawn (vertical exaggeration included)
+        ve = ax.get_aspect() if isinstance(ax.get_aspect(), float) else 1.0
+        L = [math.hypot(q[0] - p[0], ve * (q[1] - p[1])) for p, q in seg]
         i = int(np.argmax(L))
-        mid = 0.5 * (ca[i] + cc[i])
-        t = (cc[i] - ca[i]) / L[i]
+        pa, pb = np.asarray(seg[i][0]), np.asarray(seg[i][1])
+        mid = 0.5 * (pa + pb)
+        t = np.array([pb[0] - pa[0], ve * (pb[1] - pa[1])]) / L[i]
         n = np.array([-t[1], t[0]])
         eps = 1e-3 * section.extent
-        if section.outline.contains(Point(*(mid + eps * n))):
+        if section.outline.contains(Point(*(mid + eps * np.array([n[0], n[1] / ve])))):
             n = -n
         off = 9.0
         ha = "center" if abs(n[0]) < 0.5 else ("left" if n[0] > 0 else "right")
@@ -283,6 +339,67 @@ def draw_boundaries(ax, section, labels: bool = True, window=None, zorder: float
         _keep_clear(ax, ann, n, placed)
     names = {"head": "prescribed head", "seepage_face": "seepage face", "drain": "drain", "flux": "inflow"}
     return [Line2D([], [], color=c, lw=2.6, label=names[k]) for k, c in kinds.items()]
+
+
+def _visible_segments(line, window) -> list:
+    """The straight pieces of a polyline inside the window, clipped exactly (shapely)."""
+    from shapely.geometry import LineString, box
+    x0, x1, y0, y1 = window
+    g = LineString(line).intersection(box(x0, y0, x1, y1))
+    pieces = getattr(g, "geoms", [g])
+    out = []
+    for p in pieces:
+        if p.is_empty or p.geom_type != "LineString":
+            continue
+        c = np.asarray(p.coords)
+        out += [(c[k], c[k + 1]) for k in range(len(c) - 1) if np.any(c[k + 1] != c[k])]
+    return out
+
+
+def draw_water(ax, section, window=None, zorder: float = 1.5) -> list:
+    """The water standing on each head boundary: a pale fill from the ground up to the level, the level
+    line with the water-level mark (an inverted triangle); also ``checks.landside_water_level``.
+    Returns a legend handle when any water is drawn."""
+    from matplotlib.collections import LineCollection, PolyCollection
+    from matplotlib.lines import Line2D
+    from shapely.geometry import LineString, Polygon, box
+    x0, x1, y0, y1 = window or (ax.get_xlim() + ax.get_ylim())
+    col = KIND_COLOUR["head"]
+    fills, levels, marks = [], [], []
+    tol = section.length_tol
+    items = [(np.asarray(b.polyline, float), float(b.head)) for b in section.spec.boundaries if b.kind == "head"]
+    lw = section.spec.checks.landside_water_level
+    if lw is not None:
+        items += [(np.asarray(b.polyline, float), float(lw)) for b in section.spec.boundaries
+                  if b.kind == "seepage_face"]
+    for line, h in items:
+        if not (line[:, 1] < h - tol).any():
+            continue
+        top = max(h, line[:, 1].max()) + 1.0
+        # the region between the ground line and the level: above the outline, below the level
+        area = Polygon(np.vstack([line, [[line[-1, 0], top], [line[0, 0], top]]])) if line[0, 0] != line[-1, 0] else None
+        if area is None or not area.is_valid:
+            continue
+        wet = area.intersection(box(line[:, 0].min(), line[:, 1].min() - 1.0, line[:, 0].max(), h)).difference(
+            section.outline).intersection(box(x0, y0, x1, y1))
+        for g in getattr(wet, "geoms", [wet]):
+            if g.is_empty or g.geom_type != "Polygon" or g.area <= tol * tol:
+                continue
+            fills.append(np.asarray(g.exterior.coords))
+            gx0, _, gx1, _ = g.bounds
+            levels.append([[gx0, h], [gx1, h]])
+            # the mark near the end of the water nearer the middle of the drawing (clear of the label)
+            mid = 0.5 * (x0 + x1)
+            marks.append((gx1 - 0.1 * (gx1 - gx0) if abs(gx1 - mid) < abs(gx0 - mid) else gx0 + 0.1 * (gx1 - gx0), h))
+    if not fills:
+        return []
+    # pale blue with level hatching, so water never reads as a zone's fill
+    ax.add_collection(PolyCollection(fills, facecolors=tint(OKABE_ITO["blue"], 0.88), edgecolors=tint(col, 0.55),
+                                     linewidths=0.0, hatch="--", zorder=zorder))
+    ax.add_collection(LineCollection(levels, colors=col, linewidths=1.0, zorder=zorder + 0.1))
+    mx, my = np.asarray(marks).T
+    ax.plot(mx, my, ls="none", marker="v", ms=6, mfc="white", mec=col, mew=1.0, zorder=zorder + 4.6)
+    return [Line2D([], [], color=col, lw=1.0, marker="v", ms=5, mfc="white", mec=col, label="water level (water hatched)")]
 
 
 def _keep_clear(ax, ann, n, placed: list, step: float = 11.0, tries: int = 6) -> None:
@@ -301,10 +418,31 @@ def _keep_clear(ax, ann, n, placed: list, step: float = 11.0, tries: int = 6) ->
     placed.append(bb)
 
 
-def triangulation(mesh):
-    """matplotlib Triangulation on every node (P2: four linear sub-triangles per element)."""
+import weakref
+
+_TRI_CACHE: "weakref.WeakKeyDictionary" = weakref.WeakKeyDictionary()
+
+
+def triangulation(mesh, window=None, corners: bool = False):
+    """matplotlib Triangulation on every node (P2: four linear sub-triangles per element); with a window
+    (x0, x1, y0, y1), the triangles wholly outside it are masked (not contoured: a closer view costs less).
+    ``corners``: the elements' corner triangles only (P2: a quarter of the triangles), for filled colour
+    bands, where the difference cannot be seen and the contouring costs a quarter."""
     from matplotlib.tri import Triangulation
-    return Triangulation(mesh.points[:, 0], mesh.points[:, 1], mesh.linear_triangles())
+    key = (None if window is None else tuple(float(v) for v in window), bool(corners))
+    cache = _TRI_CACHE.setdefault(mesh, {})            # kept while the mesh lives (weak reference)
+    if key in cache:
+        return cache[key]                               # its C++ edges and neighbours are built once
+    t = mesh.cells[:, :3] if corners else mesh.linear_triangles()
+    tri = Triangulation(mesh.points[:, 0], mesh.points[:, 1], t)
+    cache[key] = tri
+    if window is not None:
+        x0, x1, y0, y1 = window
+        X, Y = mesh.points[t, 0], mesh.points[t, 1]
+        out = (X.max(1) < x0) | (X.min(1) > x1) | (Y.max(1) < y0) | (Y.min(1) > y1)
+        if out.any() and not out.all():
+            tri.set_mask(out)
+    return tri
 
 
 def draw_mesh(ax, mesh, colour=MUTED, lw: float = 0.25, zorder: float = 2):

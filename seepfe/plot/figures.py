@@ -63,11 +63,37 @@ def _phreatic(ax, result, label=True):
                    label="phreatic surface (pressure head = 0)")]
 
 
+def saturated_pieces(line: np.ndarray, level: float, tol: float = 0.0) -> list:
+    """The parts of an equipotential of head ``level`` (an (n, 2) polyline, m) where the soil is saturated:
+    pressure head = level - y >= 0, cut exactly at y = level."""
+    y = line[:, 1]
+    wet = y <= level + tol
+    if wet.all():
+        return [line]
+    edges = np.diff(np.concatenate([[0], wet.astype(int), [0]]))
+    out = []
+    for a, b in zip(np.flatnonzero(edges == 1), np.flatnonzero(edges == -1)):     # runs of wet points
+        pts = line[a:b]
+        if a > 0:
+            pts = np.vstack([_cross(line[a - 1], line[a], level), pts])
+        if b < len(line):
+            pts = np.vstack([pts, _cross(line[b - 1], line[b], level)])
+        if len(pts) > 1:
+            out.append(pts)
+    return out
+
+
+def _cross(a, b, level):
+    t = (level - a[1]) / (b[1] - a[1]) if b[1] != a[1] else 0.0
+    return a + t * (b - a)
+
+
 def _window(result, window):
     return window if window is not None else base.window_of(result.section)
 
 
-def section_figure(section, mesh=None, window=None, title: str | None = None, show_mesh: bool = False):
+def section_figure(section, mesh=None, window=None, title: str | None = None, show_mesh: bool = False,
+                   exaggeration: float | None = None):
     """The section: zones filled by material (legend: name and k, m/s), boundaries by kind and value.
 
     Parameters
@@ -77,12 +103,14 @@ def section_figure(section, mesh=None, window=None, title: str | None = None, sh
         Drawn when ``show_mesh`` is true.
     window : (x0, x1, y0, y1), optional
         Part of the section to draw, m (default: all of it).
+    exaggeration : vertical exaggeration (default None: chosen for the window, :func:`base.exaggeration_for`).
     """
     win = window if window is not None else base.window_of(section)
     with style():
-        fr = base.frame(win, title=title or section.title or "Section", units=section.units)
+        fr = base.frame(win, title=title or section.title or "Section", units=section.units, exaggeration=exaggeration)
         ax = fr.ax
         colours = base.draw_zones(ax, section)
+        wh = base.draw_water(ax, section, win)
         if show_mesh and mesh is not None:
             base.draw_mesh(ax, mesh, colour=INK, lw=0.2, zorder=2)
         base.draw_zone_edges(ax, section)
@@ -92,12 +120,13 @@ def section_figure(section, mesh=None, window=None, title: str | None = None, sh
             bh.append(Line2D([], [], color=INK, lw=0.4,
                              label=f"mesh: {mesh.n_elements} P{mesh.order} triangles, {mesh.n_nodes} nodes"))
         fr.legend(base.material_handles(section, colours), ncol=2)
-        fr.legend(bh, ncol=3)
+        fr.legend(bh + wh, ncol=3)
     return fr.fig
 
 
 def field_figure(result, quantity: str = "total_head", window=None, title: str | None = None,
-                 arrows: bool = False, n_levels: int = 18, show_phreatic: bool = True):
+                 arrows: bool = False, n_levels: int = 18, show_phreatic: bool = True,
+                 exaggeration: float | None = None):
     """Filled and labelled contours of a nodal field at round intervals, with the phreatic surface.
 
     Parameters
@@ -125,12 +154,13 @@ def field_figure(result, quantity: str = "total_head", window=None, title: str |
     with style():
         default = {"total_head": "Total head", "pressure_head": "Pressure head",
                    "pore_pressure": "Pore-water pressure"}[quantity]
-        fr = base.frame(win, title=title or default, units=sec.units)
+        fr = base.frame(win, title=title or default, units=sec.units, exaggeration=exaggeration)
         ax = fr.ax
-        tri = base.triangulation(result.mesh)
+        tri = base.triangulation(result.mesh, win)
         cmap = field_cmap()
         norm = mcolors.BoundaryNorm(bounds, cmap.N)
-        cf = ax.tricontourf(tri, v, levels=bounds, cmap=cmap, norm=norm, zorder=1)
+        cf = ax.tricontourf(base.triangulation(result.mesh, win, corners=True), v, levels=bounds, cmap=cmap, norm=norm,
+                            zorder=1)
         cf.set_rasterized(True) if hasattr(cf, "set_rasterized") else None
         handles = []
         if len(lv):
@@ -141,6 +171,7 @@ def field_figure(result, quantity: str = "total_head", window=None, title: str |
                       inline_spacing=3)
         base.draw_zone_edges(ax, sec, colour="white", lw=0.8, zorder=3)
         bh = base.draw_boundaries(ax, sec, window=win)
+        handles += base.draw_water(ax, sec, win)
         if show_phreatic:
             handles += _phreatic(ax, result)
         if arrows:
@@ -194,29 +225,41 @@ def _arrows(ax, result, win, columns: int = 28, key_at=(0.86, 1.035), key_coords
 
 
 def flow_net_figure(result, window=None, title: str | None = None, n_drops: int | None = None,
-                    net=None, show_phreatic: bool = True):
+                    net=None, show_phreatic: bool = True, exaggeration: float | None = None):
     """A flow net: equipotentials at Nd equal head drops and flow lines at equal flow from the
     stream function (:mod:`seepfe.flownet`), with Nf, Nd and the check q = k H Nf / Nd.
 
     The :class:`seepfe.flownet.FlowNet` drawn is returned on the figure as ``fig.seepfe_flow_net``, the
     contour sets as ``fig.seepfe_contours`` ({"equipotentials": ..., "flow_lines": ...}).
+
+    Equipotentials are drawn only where the soil is saturated: on the equipotential of head H the pressure
+    head is H - y, so each line is cut exactly where it rises above y = H (the phreatic surface, a dry
+    face); nothing is drawn through the unsaturated zone.
     """
     sec = result.section
     net = net or flow_net(result, n_drops=n_drops)
     win = _window(result, window)
     with style():
-        fr = base.frame(win, title=title or "Flow net", units=sec.units)
+        fr = base.frame(win, title=title or "Flow net", units=sec.units, exaggeration=exaggeration)
         ax = fr.ax
         colours = base.draw_zones(ax, sec, lighten=0.8)
-        tri = base.triangulation(result.mesh)
+        wh = base.draw_water(ax, sec, win)
+        tri = base.triangulation(result.mesh, win)
         eq = net.equipotential_levels
         fl = net.flow_line_levels
         from matplotlib.lines import Line2D
         c_eq, c_fl = OKABE_ITO["vermillion"], OKABE_ITO["blue"]
         drawn = {}
         if len(eq):
-            drawn["equipotentials"] = ax.tricontour(tri, result.h, levels=eq, colors=c_eq, linewidths=0.7,
-                                                    linestyles=[(0, (5, 2))], zorder=4)
+            from matplotlib.collections import LineCollection
+            cs = ax.tricontour(tri, result.h, levels=eq, colors=c_eq, linewidths=0.7, zorder=4)
+            wet = []
+            for lev, path in zip(cs.levels, cs.get_paths()):
+                for seg in path.to_polygons(closed_only=False):
+                    wet += saturated_pieces(np.asarray(seg), float(lev), sec.head_tol)
+            cs.remove()                     # kept for its levels; the saturated pieces are drawn instead
+            ax.add_collection(LineCollection(wet, colors=c_eq, linewidths=0.7, linestyles=[(0, (5, 2))], zorder=4))
+            drawn["equipotentials"] = cs
         if len(fl):
             drawn["flow_lines"] = ax.tricontour(tri, net.psi, levels=fl, colors=c_fl, linewidths=0.9, zorder=5)
         base.draw_zone_edges(ax, sec, colour=MUTED, lw=0.6, zorder=3)
@@ -231,8 +274,11 @@ def flow_net_figure(result, window=None, title: str | None = None, n_drops: int 
                           label=f"equipotential (head drop {u.from_si(net.dh, 'length'):.3g} {L_u} between lines)")]
         if show_phreatic:
             handles += _phreatic(ax, result)
-        fr.legend(handles + bh, ncol=2)
+        fr.legend(handles + bh + wh, ncol=2)
         fr.legend(base.material_handles(sec, colours), ncol=2)
+        if fr.exaggeration != 1.0:
+            fr.text(f"Drawn with vertical exaggeration {fr.exaggeration:g}\u00d7: flow lines and equipotentials cross "
+                    "at right angles and form squares only at true scale.", fontsize=7, color=MUTED)
         k_txt = base.fmt_sci(net.k_ref / u.factor("conductivity"), 2)
         if net.squares:
             txt = (f"Nf = {net.n_channels:.2f} flow channels,  Nd = {net.n_drops} head drops,  H = {hl:.3g} {L_u},  "
@@ -250,18 +296,20 @@ def flow_net_figure(result, window=None, title: str | None = None, n_drops: int 
     return fr.fig
 
 
-def velocity_figure(result, window=None, title: str | None = None, columns: int = 32):
+def velocity_figure(result, window=None, title: str | None = None, columns: int = 32,
+                    exaggeration: float | None = None):
     """Darcy-velocity arrows on a sparse regular grid over the section (linear scale, key in m/s),
     on the zones by material, with the phreatic surface."""
     sec = result.section
     win = _window(result, window)
     with style():
-        fr = base.frame(win, title=title or "Darcy velocity", units=sec.units)
+        fr = base.frame(win, title=title or "Darcy velocity", units=sec.units, exaggeration=exaggeration)
         ax = fr.ax
         colours = base.draw_zones(ax, sec, lighten=0.78)
+        handles = base.draw_water(ax, sec, win)
         base.draw_zone_edges(ax, sec, colour=MUTED, lw=0.6, zorder=3)
         bh = base.draw_boundaries(ax, sec, window=win)
-        handles = _phreatic(ax, result)
+        handles += _phreatic(ax, result)
         kx, ky = fr._anchor(0.12)
         handles += _arrows(ax, result, win, columns=columns, key_at=(kx + 0.03, ky), key_coords="figure",
                            color=OKABE_ITO["blue"])

@@ -14,14 +14,16 @@ log = logging.getLogger("seepfe")
 
 
 def save_figure(fig, stem, formats=("png", "svg"), dpi: int = 200) -> list[Path]:
-    """Save a figure as ``stem.png`` and ``stem.svg`` (or the given formats); return the paths."""
+    """Save a figure as ``stem.png`` and ``stem.svg`` (or the given formats: png, svg, pdf); return the paths.
+    PDF figures embed their fonts as TrueType (Type 42), not Type 3."""
     from .style import style
     stem = Path(stem)
     out = []
     with style():
         for f in formats:
             p = stem.with_suffix("." + f)
-            fig.savefig(p, format=f, dpi=dpi, metadata={"Software": None} if f == "png" else {"Date": None})
+            fig.savefig(p, format=f, dpi=dpi, metadata={"Software": None} if f == "png" else
+                        {"CreationDate": None} if f == "pdf" else {"Date": None})
             out.append(p)
     return out
 
@@ -37,14 +39,17 @@ class FigureItem:
 
 
 def figure_set(result, show_mesh: bool = False, arrows: bool = False, quantity: str = "pore_pressure",
-               detail: bool = True, net=None, analysis=None):
+               detail: bool = True, net=None, analysis=None, exaggeration: float | None = None,
+               pressure_whole: bool = True):
     """Yield the standard figures of a result (as :class:`FigureItem`, one at a time to keep memory low).
 
     section, mesh (if asked), total head, ``quantity`` (pressure head or pore pressure), flow net,
     velocity arrows (if asked),
     each again on a closer window when the section is long and flat, and one exit-gradient profile
     per exit surface the analysis checked (``analysis``: :func:`seepfe.analyse` of the result, made here
-    when not given).
+    when not given). ``exaggeration``: vertical exaggeration of the whole-section views (default: chosen for
+    long flat sections, :func:`seepfe.plot.base.exaggeration_for`); closer views are chosen alike.
+    ``pressure_whole=False`` draws the pressure only in the closer view where there is one (the report's set).
     """
     from ..analysis import analyse
     from .figures import field_figure, flow_net_figure, section_figure, velocity_figure
@@ -59,32 +64,40 @@ def figure_set(result, show_mesh: bool = False, arrows: bool = False, quantity: 
     # the plan first (name, caption, how to draw), so the log can say "figure i of N"; drawn one at a time
     plan = []
     lab = {"pore_pressure": "Pore-water pressure", "pressure_head": "Pressure head"}[quantity]
+    ve = {"": exaggeration, "_detail": exaggeration}
+    toe = base.sides(sec)["toe"]
     for suffix, win in windows:
         what = " (closer view)" if suffix else ""
+        x = ve[suffix]
         plan.append(("section" + suffix, "The section: zones by material, boundaries by kind and value" + what,
-                     lambda win=win, what=what: section_figure(sec, result.mesh, window=win,
-                                                               title=(sec.title or "Section") + what)))
+                     lambda win=win, what=what, x=x: section_figure(sec, result.mesh, window=win,
+                                                               title=(sec.title or "Section") + what,
+                                                               exaggeration=x)))
         if show_mesh:
             plan.append(("mesh" + suffix, "The finite-element mesh" + what,
-                         lambda win=win, what=what: section_figure(sec, result.mesh, window=win, show_mesh=True,
-                                                                   title="Mesh" + what)))
+                         lambda win=win, what=what, x=x: section_figure(sec, result.mesh, window=win, show_mesh=True,
+                                                                   title="Mesh" + what, exaggeration=x)))
         plan.append(("total_head" + suffix, "Total head, contours at round intervals, with the phreatic surface" + what,
-                     lambda win=win, what=what: field_figure(result, "total_head", window=win,
-                                                             title="Total head" + what)))
-        plan.append((quantity + suffix, lab + what,
-                     lambda win=win, what=what: field_figure(result, quantity, window=win, title=lab + what)))
+                     lambda win=win, what=what, x=x: field_figure(result, "total_head", window=win,
+                                                             title="Total head" + what, exaggeration=x)))
+        if suffix or pressure_whole or len(windows) == 1:
+            plan.append((quantity + suffix, lab + what,
+                         lambda win=win, what=what, x=x: field_figure(result, quantity, window=win, title=lab + what,
+                                                                      exaggeration=x)))
         plan.append(("flownet" + suffix, "Flow net: equipotentials and flow lines of equal flow" + what,
-                     lambda win=win, what=what: flow_net_figure(result, window=win, net=net, title="Flow net" + what)))
+                     lambda win=win, what=what, x=x: flow_net_figure(result, window=win, net=net, title="Flow net" + what,
+                                                                exaggeration=x)))
         if arrows:
             plan.append(("velocity" + suffix, "Darcy velocity arrows (linear scale)" + what,
-                         lambda win=win, what=what: velocity_figure(result, window=win, title="Darcy velocity" + what)))
+                         lambda win=win, what=what, x=x: velocity_figure(result, window=win, title="Darcy velocity" + what,
+                                                                exaggeration=x)))
     for name, prof in analysis.exits.items():
         if len(prof.x) < 2:
             continue
         safe = "".join(c if c.isalnum() or c in "-_" else "_" for c in name)
         plan.append((f"exit_gradient_{safe}", f"Exit gradients and factor of safety along '{name}'",
                      lambda prof=prof, name=name: exit_gradient_figure(prof, title=f"Exit gradients along '{name}'",
-                                                                       units=sec.units)))
+                                                                       units=sec.units, toe=toe)))
     for i, (fname, caption, draw) in enumerate(plan, 1):
         log.info("figure %d of %d: %s", i, len(plan), fname)
         yield FigureItem(fname, caption, draw())

@@ -43,7 +43,7 @@ MARKER = ".seepfe-sweep"
 GOVERNING = {"fs": "fs", "fs_mode": "mode", "fs_boundary": "boundary", "fs_x_m": "x_m",
              "top_stratum_thickness_m": "top_stratum_thickness_m", "exit_gradient_max": "exit_gradient_max",
              "exit_gradient_x_m": "exit_gradient_x_m", "exit_gradient_boundary": "exit_gradient_boundary",
-             "fails_within_m_of_toe": "fails_within_m_of_toe", "verdict": "verdict", "why": "why"}
+             "fails_within_m_of_toe": "fails_within_m_of_toe", "failing_length_m": "failing_length_m", "verdict": "verdict", "why": "why"}
 _TEXT = ("fs_mode", "fs_boundary", "exit_gradient_boundary", "verdict", "why")
 
 
@@ -338,6 +338,7 @@ def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts
                 for t in rep.targets:
                     files += report.plot_target(tmp, t, f"{t['parameter']} ({t['unit']})",
                                                 report._label(t["quantity"]),
+                                                1.0 if t["quantity"] == "verdict" else
                                                 float(t["condition"].split()[-1]))
         fr = rep.fragility
         if fr is not None:

@@ -20,7 +20,7 @@ import time
 __all__ = ["run_case", "case_hash", "CASE_FORMAT", "from_json_float"]
 
 #: bump when the record format or the reduction changes, so old cached cases are not reused
-CASE_FORMAT = 2
+CASE_FORMAT = 3
 _THREAD_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "VECLIB_MAXIMUM_THREADS",
                 "NUMEXPR_NUM_THREADS")
 
@@ -28,9 +28,11 @@ _THREAD_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "V
 def case_hash(payload: dict) -> str:
     """sha256 of the resolved input of a case: section dict, solve options, probes, format, version."""
     from ..about import __version__
-    canon = json.dumps({"format": CASE_FORMAT, "seepfe": __version__, "section": payload["section"],
-                        "solve": payload.get("solve") or {}, "points": payload.get("points") or {},
-                        "exit": payload.get("exit")},
+    key = {"format": CASE_FORMAT, "seepfe": __version__, "section": payload["section"],
+           "solve": payload.get("solve") or {}, "points": payload.get("points") or {}, "exit": payload.get("exit")}
+    if payload.get("report"):            # a reach station: the record and its report (other options, other case)
+        key["report"] = payload["report"]
+    canon = json.dumps(key,
                        sort_keys=True, separators=(",", ":"), allow_nan=False)
     return hashlib.sha256(canon.encode()).hexdigest()
 

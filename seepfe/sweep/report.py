@@ -14,7 +14,7 @@ import numpy as np
 
 __all__ = ["write_table", "plot_vs_parameter", "plot_profiles", "plot_fragility", "plot_target", "OKABE_ITO"]
 
-OKABE_ITO = ["#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#F0E442", "#000000"]
+OKABE_ITO = ["#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#F0E442", "#000000"]   # as plot.style
 
 
 def _fmt(v) -> str:
@@ -40,25 +40,42 @@ def write_table(path: Path, columns: list[str], rows: list[dict]) -> None:
 
 
 def _figure(w=7.0, h=4.0, rows=1, cols=1):
+    """A figure in seepfe's style (seepfe.plot.style: fonts, colours, line widths), as wide as the others."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
-    fig = Figure(figsize=(w, h), dpi=120, layout="constrained")
+
+    from ..plot.style import FIG_WIDTH_IN, style
+    with style():
+        fig = Figure(figsize=(FIG_WIDTH_IN, h * FIG_WIDTH_IN / w), dpi=100, layout="constrained")
+        FigureCanvasAgg(fig)
+        axs = _axes(fig, rows, cols)
+    return fig, axs
+
+
+def _axes(fig, rows, cols):
     axs = fig.subplots(rows, cols, squeeze=False)
     for ax in axs.flat:
-        ax.grid(True, color="#dddddd", linewidth=0.6)
+        ax.grid(True, color="#e6e6e6", linewidth=0.5)
         ax.set_axisbelow(True)
         for s in ("top", "right"):
             ax.spines[s].set_visible(False)
         ax.tick_params(labelsize=8)
-    return fig, axs
+    return axs
 
 
 def _save(fig, stem: Path) -> list[str]:
+    from ..plot.style import style
     stem.parent.mkdir(parents=True, exist_ok=True)
     out = []
-    for ext in ("png", "svg"):
-        p = stem.parent / f"{stem.name}.{ext}"      # names hold dots (dotted keys): append, never replace
-        fig.savefig(p)
-        out.append(p.name)
+    for t in fig.texts:                                  # titles at the left, bold, as in the section figures
+        t.set_horizontalalignment("left")
+        t.set_x(0.01)
+        t.set_fontweight("bold")
+    with style():
+        for ext in ("png", "svg"):
+            p = stem.parent / f"{stem.name}.{ext}"      # names hold dots (dotted keys): append, never replace
+            fig.savefig(p, metadata={"Software": None} if ext == "png" else {"Date": None})
+            out.append(p.name)
     return out
 
 

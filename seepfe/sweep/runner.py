@@ -68,7 +68,8 @@ class Runner:
     """
 
     def __init__(self, cache_dir=None, workers: Optional[int] = None, scheduler=None,
-                 max_solves: Optional[int] = None):
+                 max_solves: Optional[int] = None, func: Callable[[dict], dict] = run_case):
+        self.func = func            # what a worker runs on a payload (a module-level function: it is pickled)
         self.cache = CaseCache(cache_dir) if cache_dir is not None else None
         self.workers = workers or usable_cores()
         self.scheduler = scheduler
@@ -134,7 +135,7 @@ class Runner:
             client = self._dask()
             futs = {}
             for h, p in items:
-                f = client.submit(run_case, p, key=f"seepfe-case-{h}", pure=False)
+                f = client.submit(self.func, p, key=f"seepfe-case-{h}", pure=False)
                 futs[f] = h
             ac = as_completed(list(futs), with_results=True)
             try:
@@ -147,11 +148,11 @@ class Runner:
             return
         if self.workers == 1:
             for h, p in items:
-                yield h, run_case(p)
+                yield h, self.func(p)
             return
         pool = self._local_pool()
         with _thread_env():
-            pending = {pool.submit(run_case, p): h for h, p in items}
+            pending = {pool.submit(self.func, p): h for h, p in items}
         try:
             while pending:
                 done, _ = wait(pending, return_when=FIRST_COMPLETED)

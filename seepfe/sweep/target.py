@@ -33,7 +33,7 @@ class Stopped(Exception):
 #: quantities read from a record's governing block (table column -> governing key); "fs_min" is the old name of "fs"
 GOVERNING_QUANTITIES = {"fs": "fs", "fs_min": "fs", "exit_gradient_max": "exit_gradient_max",
                         "top_stratum_thickness_m": "top_stratum_thickness_m",
-                        "fails_within_m_of_toe": "fails_within_m_of_toe"}
+                        "fails_within_m_of_toe": "fails_within_m_of_toe", "failing_length_m": "failing_length_m"}
 #: quantities whose default condition (no at_least / at_most) is the verdict
 VERDICT_QUANTITIES = ("verdict", "fs", "fs_min")
 
