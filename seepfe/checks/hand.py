@@ -724,9 +724,16 @@ def _sellmeijer(st: _Setting, blanket: HandMethod) -> HandMethod:
                    assumptions="Sellmeijer et al. (2011): critical head H_c = F_R F_S F_G L for backward erosion piping "
                                "under a blanket, compared with the head reduced by 0.3 d_top (Dutch practice, from memory); "
                                "coefficients in seepfe.checks.handmethods.SELLMEIJER")
-    for k in ("L_m", "D_m", "d70_m", "k_m_s", "kappa_m2", "F_R", "F_S", "F_G"):
-        unit = {"L_m": "m", "D_m": "m", "d70_m": "m", "k_m_s": "m/s", "kappa_m2": "m2"}.get(k, "-")
-        m.add_input(k, r[k], unit, k)
+    meaning = {"L_m": ("m", "seepage length: effective riverside entrance x1 + levee base width"),
+               "D_m": ("m", "thickness of the pervious substratum"),
+               "d70_m": ("m", "d70 of the substratum's top layer"),
+               "k_m_s": ("m/s", "horizontal conductivity of the substratum, k_f"),
+               "kappa_m2": ("m2", "intrinsic permeability nu k / g (water at about 10 degC)"),
+               "F_R": ("-", "resistance factor eta (gamma_p'/gamma_w) tan(theta), with gamma_p'/gamma_w = 1.65"),
+               "F_S": ("-", "scale factor d70_m / (kappa L)^(1/3) (d70 / d70_m)^0.4"),
+               "F_G": ("-", "geometry factor 0.91 (D/L)^(0.28 / ((D/L)^2.8 - 1) + 0.04)")}
+    for k, (unit, what) in meaning.items():
+        m.add_input(k, r[k], unit, what)
     m.add_input("H_reduced_m", dh, "m", "H - 0.3 d_top")
     if not (1.5e-4 <= d70 <= 4.5e-4):
         m.notes.append(f"Sellmeijer: d70 = {d70:.3g} m lies outside the range of the rule's calibration tests (about "
