@@ -257,3 +257,23 @@ def test_example_observations_name_every_piezometer_inside_the_section():
     pts = np.array([[h["x"], h["y"]] for ev in d["events"] for h in ev["heads"]])
     import shapely
     assert shapely.contains_xy(sec.outline, pts[:, 0], pts[:, 1]).all()
+
+
+def test_a_value_pushed_onto_its_bound_gets_no_interval():
+    # k_sand may not exceed 1e-4 m/s here, while the readings want about 2.3e-4: it rests on its bound, and the
+    # record says the value is the bound's, not the data's
+    d = _obs()
+    d["fit"]["k_sand"] = {"min": 1e-6, "max": 1e-4}
+    cal = calibrate(SECTION, d, order=1, size=8.0, checks=False)
+    p = cal["parameters"]["k_sand"]
+    assert p["at_bound"] == "max" and p["value"] == pytest.approx(1e-4, rel=1e-6)
+    assert p["low"] is None and p["high"] is None and cal["identifiable"]["k_sand"] is False
+    assert "rests on its upper bound" in cal["identifiable_why"]["k_sand"]
+
+
+def test_an_event_with_a_flow_and_no_heads():
+    d = _obs()
+    d["events"].append({"name": "later", "fixed": {"stage": 4.0},
+                        "flows": [{"boundary": "channel", "value": -4.3e-5, "sigma": 8e-6}]})
+    cal = calibrate(SECTION, d, order=1, size=8.0, checks=False)
+    assert [r["event"] for r in cal["residuals"]].count("later") == 1 and all(cal["identifiable"].values())

@@ -104,6 +104,7 @@ class ForwardModel:
         self.history: list[float] = []       # chi2 of every new evaluation, in order
         self.solves = 0
         self.sensitivity_methods: set = set()
+        self.values_shown: dict = {}         # the values of the solve under way (for its error message)
         self._material_only: dict | None = None
         self.observed = np.concatenate([np.concatenate([e.heads, e.flows]) for e in obs.events])
         self.sigma = np.concatenate([np.concatenate([e.head_sigma, e.flow_sigma]) for e in obs.events])
