@@ -208,7 +208,7 @@ def calibrate(section, observations, *, order: Optional[int] = None, size: Optio
     section_data = _calibrated_section(data, values, obs)
     analyses, check_rows = _checks(model, obs, values, scale) if checks else ({}, [])
     fit_info = {
-        "method": "weighted nonlinear least squares, trust-region reflective (scipy.optimize.least_squares)",
+        "method": "Weighted nonlinear least squares, trust-region reflective (scipy.optimize.least_squares)",
         "coordinates": {k.key: k.scale for k in free_keys},
         "sensitivities": sorted(model.sensitivity_methods) or ["none"],
         "status": "converged" if sol.status > 0 else "stopped",
