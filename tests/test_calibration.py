@@ -259,6 +259,14 @@ def test_example_observations_name_every_piezometer_inside_the_section():
     assert shapely.contains_xy(sec.outline, pts[:, 0], pts[:, 1]).all()
 
 
+def test_a_fit_stopped_early_says_so_and_exits_3(tmp_path, capsys):
+    out = tmp_path / "cal"
+    assert main(["calibrate", str(SECTION), str(OBS), "--out", str(out), "--no-plots", "--max-evaluations", "2"]
+                + COARSE) == 3
+    cal = json.loads((out / "calibration.json").read_text())
+    assert cal["fit"]["status"] == "stopped" and any("before it converged" in w for w in cal["warnings"])
+
+
 def test_a_value_pushed_onto_its_bound_gets_no_interval():
     # k_sand may not exceed 1e-4 m/s here, while the readings want about 2.3e-4: it rests on its bound, and the
     # record says the value is the bound's, not the data's

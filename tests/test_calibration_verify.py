@@ -111,10 +111,10 @@ def _coverage(clean, draws, seed0=1000):
 
 
 def test_twin_intervals_cover_the_truth_in_a_few_draws(clean):
-    # quick version of the coverage check below: 5 draws (seeds 1000-1004), 10 intervals; at 95 % the chance
-    # of 3 or more misses is about 1 % (binomial)
-    hits = _coverage(clean, 5)
-    assert sum(hits.values()) >= 8, hits
+    # quick version of the coverage check below: 3 draws (seeds 1000-1002), 6 intervals; at 95 % the chance
+    # of 2 or more misses is about 3 % (binomial)
+    hits = _coverage(clean, 3)
+    assert sum(hits.values()) >= 5, hits
 
 
 @pytest.mark.slow

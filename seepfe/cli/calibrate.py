@@ -49,4 +49,5 @@ def run(args) -> int:
         written = write_into(cal, Path(tmp), plots=not args.no_plots)
     print(cal.text())
     print(f"written: {args.out}/ ({', '.join(n for n in written if not n.endswith('.svg'))}; SVG beside each PNG)")
-    return 0
+    # 3, as for a solve that did not converge: the fit stopped before a minimum (--max-evaluations)
+    return 0 if cal["fit"]["status"] == "converged" else 3
