@@ -116,6 +116,10 @@ def calibrate(section, observations, *, order: Optional[int] = None, size: Optio
     scale = _scale_analysis(probe, obs, sections0, start)
     held: dict = {}
     free_keys = list(keys)
+    if obs.reference is not None and scale["mode"] != "ratio":
+        notes.append(f"reference '{obs.reference}' not used: {scale['why']}" if scale["mode"] == "determined" else
+                     f"reference '{obs.reference}' not used: the fitted keys do not scale every conductivity together, "
+                     "so the conductivities held at their section values fix the level")
     if scale["mode"] == "ratio":
         ref = scale["reference"]
         held[ref] = start[ref]
