@@ -92,16 +92,14 @@ def report_section(cal, figures=None) -> str:
     return "\n".join(P)
 
 
-_CSS = """body{font-family:"DejaVu Sans",Verdana,Arial,sans-serif;color:#2b2b2b;max-width:62rem;margin:1.5rem auto;
-padding:0 1.2rem;line-height:1.45;font-size:15px}h2{font-size:1.2rem;border-bottom:1px solid #d8d8d8}
-table{border-collapse:collapse;margin:.4rem 0 1rem;font-size:.85rem}th,td{border-bottom:1px solid #e2e2e2;
-padding:.25rem .55rem;text-align:left;vertical-align:top}th{background:#f4f4f4}figure img{max-width:100%}
-figcaption{font-size:.85rem;color:#444}.caution{border-left:4px solid #D55E00;background:#fbf1ea;padding:.5rem .8rem}
-.note{font-size:.85rem;color:#555}"""
-
-
-def report_page(cal, figures=None) -> str:
-    """A one-file HTML page holding :func:`report_section` (no script, no external link)."""
-    return (f'<!DOCTYPE html><html lang="en"><head><meta charset="utf-8"><title>{_e(cal["title"])}</title>'
-            f"<style>{_CSS}</style></head><body><h1>{_e(cal['title'])}</h1>"
-            f"<p>seepfe {_e(cal['seepfe_version'])}</p>{report_section(cal, figures)}</body></html>\n")
+def report_page(cal, figures=None, paper: str = "A4") -> str:
+    """A one-file HTML page holding :func:`report_section` (no script, no external link), laid out for print
+    like the section report (:func:`seepfe.report.page.page`: the title block in every page's margins)."""
+    from ..report.page import page, project_of, title_block
+    d = cal.to_dict()
+    kind = "Calibration to observed readings"
+    fields = project_of(cal.best.results[0].section.spec)      # the section file's project block, if any
+    extra = [("section", d["section"]), ("observations", d["observations"]), ("seepfe", d["seepfe_version"]),
+             ("section SHA-256", d["section_sha256"][:16] + "…")]
+    head = f"<h1>{_e(d['title'])}</h1>" + title_block(fields, d["title"], kind, extra)
+    return page(d["title"], [head, report_section(cal, figures)], fields, kind, paper, f"seepfe {d['seepfe_version']}")
