@@ -1,6 +1,8 @@
 """Write the JSON Schemas in docs/ from the code: section.schema.json (the section-file format, from
-seepfe.schema, seepfe.remedies and seepfe.units), sweep.schema.json (sweep files, from seepfe.sweep.spec)
-and summary.schema.json (summary.json, from seepfe.records).
+seepfe.schema, seepfe.remedies and seepfe.units), sweep.schema.json (sweep files, from seepfe.sweep.spec),
+summary.schema.json (summary.json, from seepfe.records), observations.schema.json (observations files of
+seepfe calibrate, from seepfe.calibration.observations) and calibration.schema.json (calibration.json, from
+seepfe.records).
 
 Run after changing those models:  python scripts/write_schema.py
 (tests/test_schema_file.py fails while a committed file is out of date; ``--check`` does the same
@@ -18,6 +20,8 @@ ROOT = Path(__file__).resolve().parent.parent
 TARGET = ROOT / "docs" / "section.schema.json"
 SUMMARY = ROOT / "docs" / "summary.schema.json"
 SWEEP_TARGET = ROOT / "docs" / "sweep.schema.json"
+CALIBRATION = ROOT / "docs" / "calibration.schema.json"
+OBSERVATIONS = ROOT / "docs" / "observations.schema.json"
 _SCHEMA_KEY = {"title": "$schema", "type": "string",
                "description": "address of this JSON Schema, for editors that check the file as you type; "
                               "ignored by seepfe"}
@@ -31,6 +35,38 @@ def summary_schema_text() -> str:
     s["description"] = ("summary.json written by seepfe solve, report and seepfe.analyse(result).to_dict(): the "
                         "flows, the exit checks, the governing values and verdict, the hand methods. SI units "
                         "(see 'units'); null where a value could not be computed, with the reason beside it.")
+    return json.dumps(s, indent=2, sort_keys=True, ensure_ascii=False) + "\n"
+
+
+def calibration_schema_text() -> str:
+    """The schema of calibration.json (seepfe calibrate) as the exact text to commit."""
+    sys.path.insert(0, str(ROOT))
+    from seepfe.records import calibration_schema
+    s = calibration_schema()
+    s["description"] = ("calibration.json written by seepfe calibrate and seepfe.calibrate(...).to_dict(): the fitted "
+                        "values with approximate 95 % intervals, whether the readings determine each, the residuals, "
+                        "and the checks before and after. SI units; null where a value is not determined, with the "
+                        "reason beside it. See docs/calibration.md.")
+    return json.dumps(s, indent=2, sort_keys=True, ensure_ascii=False) + "\n"
+
+
+def observations_schema_text() -> str:
+    """The schema of an observations file (seepfe calibrate) as the exact text to commit."""
+    sys.path.insert(0, str(ROOT))
+    from seepfe.calibration.observations import ObservationsSpec
+    from seepfe.units import json_schema as units_schema
+    s = ObservationsSpec.model_json_schema(mode="validation", by_alias=True)
+    s["properties"]["units"] = units_schema()
+    s["properties"]["units"]["description"] = (
+        "units of the file's numbers (default: the section file's units): x, y, head and sigma of a head in the "
+        "length unit, a flow in length x conductivity per length of section, min/max and fixed values in their "
+        "key's unit")
+    s["properties"]["$schema"] = dict(_SCHEMA_KEY)
+    s = {"$schema": "https://json-schema.org/draft/2020-12/schema",
+         "$id": "https://seepfe.invalid/observations.schema.json",
+         "description": "Observations file of seepfe calibrate: piezometer heads and measured flows of past events, "
+                        "the values of those events, and the keys to fit with their bounds (docs/calibration.md).",
+         **{k: v for k, v in s.items() if k != "description"}}
     return json.dumps(s, indent=2, sort_keys=True, ensure_ascii=False) + "\n"
 
 
@@ -150,7 +186,8 @@ def main(argv=None) -> int:
     args = ap.parse_args(argv)
     bad = 0
     for target, text in ((TARGET, schema_text()), (SWEEP_TARGET, sweep_schema_text()),
-                         (SUMMARY, summary_schema_text())):
+                         (SUMMARY, summary_schema_text()), (CALIBRATION, calibration_schema_text()),
+                         (OBSERVATIONS, observations_schema_text())):
         if args.check:
             ok = target.exists() and target.read_text(encoding="utf-8") == text
             print(f"{target.relative_to(ROOT)}: {'up to date' if ok else 'OUT OF DATE: run python scripts/write_schema.py'}")

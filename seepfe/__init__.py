@@ -19,9 +19,11 @@ from .errors import MeshError, SectionError, SeepfeError, SolverError
 
 #: public name -> module that defines it
 _LAZY = {"load_section": "section", "Section": "section", "solve": "solver", "make_mesh": "mesh",
-         "Mesh": "mesh", "Result": "result", "analyse": "analysis", "Analysis": "analysis"}
+         "Mesh": "mesh", "Result": "result", "analyse": "analysis", "Analysis": "analysis",
+         "calibrate": "calibration"}
 
-__all__ = ["__version__", "load_section", "solve", "analyse", "make_mesh", "Section", "Mesh", "Result", "Analysis",
+__all__ = ["__version__", "load_section", "solve", "analyse", "calibrate", "make_mesh", "Section", "Mesh", "Result",
+           "Analysis",
            "SeepfeError", "SectionError", "MeshError", "SolverError", "CAUTION"]
 
 

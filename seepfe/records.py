@@ -18,7 +18,7 @@ from typing import Any, Literal, Optional
 from pydantic import BaseModel, ConfigDict, Field
 
 __all__ = ["Units", "Governing", "HandRecord", "ExitSummary", "Summary", "CaseRecord", "UNITS", "SUMMARY_FORMAT",
-           "summary_schema", "fs_value", "VERDICTS"]
+           "summary_schema", "fs_value", "VERDICTS", "CalibrationRecord", "calibration_schema", "CALIBRATION_FORMAT"]
 
 #: the format id written into summary.json; bump the number when a key changes meaning
 SUMMARY_FORMAT = "seepfe-summary/1"
@@ -230,3 +230,126 @@ def fs_value(governing: dict | None) -> float:
     if fs is not None:
         return float(fs)
     return math.inf if governing.get("verdict") == "pass" else math.nan
+
+
+# ---------------------------------------------------------------------------- calibration.json (issue 16)
+CALIBRATION_FORMAT = "seepfe-calibration/1"
+
+
+class CalibrationParameter(BaseModel):
+    """One key of 'fit': the fitted value and an approximate 95 % interval (SI; null where not determined)."""
+
+    model_config = _STRICT
+    value: float = Field(description="fitted value (held: the section's value), SI unit in 'unit'")
+    low: _num = Field(description="lower end of the linearised 95 % interval; null where the readings do not "
+                                  "determine the value (see identifiable_why)")
+    high: _num = Field(description="upper end of the linearised 95 % interval; null where not determined")
+    unit: str
+    start: float = Field(description="value the fit started from (the section's, inside the bounds)")
+    min: float
+    max: float
+    scale: Literal["log", "linear"] = Field(description="the coordinate the fit moves in (log: ln of the value)")
+    at_bound: Optional[Literal["min", "max"]] = Field(description="the bound the value rests on, if any")
+    held: bool = Field(description="held at the section's value because heads alone cannot fix it")
+    file_unit: str = Field(description="unit of the section file for this key")
+    value_file_units: float = Field(description="the value as written into section.calibrated.json")
+
+
+class CalibrationRatio(BaseModel):
+    model_config = _STRICT
+    value: float
+    low: _num
+    high: _num
+    identifiable: bool
+    why: str
+
+
+class CalibrationScale(BaseModel):
+    """Whether the readings fix the level of the conductivities (heads alone fix only their ratios)."""
+
+    model_config = _STRICT
+    determined: bool
+    mode: Literal["determined", "ratio", "held"] = Field(
+        description="determined: a measured flow or a prescribed flux fixes it; ratio: one fitted conductivity (the "
+                    "reference) is held and the others fitted as ratios; held: the conductivities not fitted fix it")
+    why: str
+    reference: Optional[str] = None
+    held: list[str] = Field(default_factory=list, description="materials whose held conductivity fixes the level")
+    ratios: dict[str, CalibrationRatio] = Field(default_factory=dict)
+
+
+class CalibrationResidual(BaseModel):
+    model_config = _STRICT
+    event: str
+    kind: Literal["head", "flow"]
+    name: str = Field(description="piezometer, or the boundary of a flow")
+    x_m: _num
+    y_m: _num
+    unit: str = Field(description="m for heads; m3/s per m (+ into the section) for flows")
+    observed: float
+    computed: float = Field(description="at the fitted values")
+    computed_start: float = Field(description="at the start values")
+    sigma: float
+    residual: float = Field(description="observed - computed")
+    normalised: float = Field(description="(observed - computed) / sigma")
+
+
+class CalibrationCheckValues(BaseModel):
+    model_config = _STRICT
+    fs: _num
+    mode: Optional[Literal["heave", "uplift"]]
+    boundary: Optional[str]
+    x_m: _num
+    exit_gradient_max: _num
+    verdict: Literal["pass", "fail", "not checked"]
+    why: str
+    flows_m3_s_per_m: dict[str, float]
+    flows_determined: bool = Field(description="false where the level of the conductivities is not determined")
+
+
+class CalibrationCheck(BaseModel):
+    model_config = _STRICT
+    case: str
+    kind: Literal["event", "design"]
+    fixed: dict[str, Any]
+    before: CalibrationCheckValues = Field(description="at the section's own values")
+    after: CalibrationCheckValues = Field(description="at the fitted values")
+
+
+class CalibrationRecord(BaseModel):
+    """calibration.json, written by ``seepfe calibrate`` and ``seepfe.calibrate(...).to_dict()`` (SI units)."""
+
+    model_config = _STRICT
+    format: Literal["seepfe-calibration/1"] = CALIBRATION_FORMAT
+    seepfe_version: str
+    title: str
+    section: str
+    section_sha256: str
+    observations: str
+    observations_sha256: str
+    units: dict[str, str]
+    display_units: Optional[dict[str, str]] = None
+    parameters: dict[str, CalibrationParameter]
+    identifiable: dict[str, bool] = Field(description="per key of 'fit': whether the readings determine its value")
+    identifiable_why: dict[str, str] = Field(description="per key: why (the interval's spread, a bound, the scale)")
+    correlations: dict[str, Any] = Field(description="keys (the fitted ones) and the correlation matrix of their "
+                                                     "fit coordinates (null where not determined)")
+    scale: CalibrationScale
+    residuals: list[CalibrationResidual]
+    events: list[dict[str, Any]]
+    design: Optional[dict[str, Any]]
+    fit: dict[str, Any] = Field(description="method, sensitivities, status, chi2 before and after, degrees of "
+                                            "freedom, the objective during the fit")
+    checks: list[CalibrationCheck] = Field(description="underseepage checks at each observed event and the design "
+                                                       "event, before and after calibration")
+    warnings: list[str]
+    notes: list[str]
+    caution: str
+
+
+def calibration_schema() -> dict:
+    """The JSON Schema of calibration.json (docs/calibration.schema.json)."""
+    s = CalibrationRecord.model_json_schema()
+    s["$schema"] = "https://json-schema.org/draft/2020-12/schema"
+    s["$id"] = "https://seepfe.example/calibration.schema.json"
+    return s

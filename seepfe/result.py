@@ -48,6 +48,9 @@ class Result:
     face_nodes: np.ndarray = field(default=None, repr=False)
     face_active: np.ndarray = field(default=None, repr=False)
     kr: np.ndarray = field(default=None, repr=False)     # (E,) relative conductivity (unconfined solve)
+    #: the factorisation of A[free][:, free] (free: the nodes not in ``fixed``) with ``solve(b)``, kept by
+    #: ``solve(..., keep_factorization=True)`` after a confined solve; None otherwise
+    factorization: object = field(default=None, repr=False)
 
     # ----------------------------------------------------------------- nodal fields
     @property

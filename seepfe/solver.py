@@ -39,7 +39,7 @@ _solve_fixed = bcs.solve_fixed
 
 
 def solve(section, *, order: int | None = None, size: float | None = None, mesh: Mesh | None = None,
-          linear: str | None = None, accuracy: float | None = None) -> Result:
+          linear: str | None = None, accuracy: float | None = None, keep_factorization: bool = False) -> Result:
     """Mesh, assemble and solve a section for the steady head field.
 
     Parameters
@@ -58,6 +58,9 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
         Requested relative discretisation error of the flows (default: the section's ``solver.accuracy``;
         0 or None: the mesh as specified). When set and neither ``mesh`` nor ``size`` is given, the mesh is
         chosen by :func:`seepfe.accuracy.solve_to_accuracy`.
+    keep_factorization : bool
+        Keep the factorisation of the free-free block of a confined solve in ``Result.factorization`` (for
+        sensitivities by back-substitution, :mod:`seepfe.calibration`); None after an unconfined solve.
 
     Returns
     -------
@@ -163,7 +166,8 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
                   fixed=np.sort(fixed), solver_info=info, matrix=A,
                   element_K=Kz[mesh.zone] if unconf is None else Kz[mesh.zone] * unconf.kr[:, None, None],
                   kr=None if unconf is None else unconf.kr,
-                  face_nodes=bc.face_nodes, face_active=face_fixed.copy())
+                  face_nodes=bc.face_nodes, face_active=face_fixed.copy(),
+                  factorization=cache["solver"] if keep_factorization and unconf is None else None)
 
 
 accuracy_mod.register_solver(solve)

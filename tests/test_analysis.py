@@ -21,7 +21,9 @@ from seepfe.cli import main
 from seepfe.records import CaseRecord, Summary
 
 ROOT = Path(__file__).resolve().parent.parent
-SECTIONS = sorted(p for p in (ROOT / "sections").glob("*.json") if not p.name.endswith((".sweep.json", ".build.json", ".stages.json", ".reach.json")))
+SECTIONS = sorted(p for p in (ROOT / "sections").glob("*.json")
+                  if not p.name.endswith((".sweep.json", ".build.json", ".stages.json", ".reach.json",
+                                          ".observations.json")))
 
 
 def _levee(remedies=(), fill_weight=True, size=2.0):

@@ -7,7 +7,8 @@ import pytest
 import seepfe
 
 SECTIONS = sorted(p for p in (Path(__file__).parent.parent / "sections").glob("*.json")
-                  if not p.name.endswith((".sweep.json", ".build.json", ".stages.json", ".reach.json")))
+                  if not p.name.endswith((".sweep.json", ".build.json", ".stages.json", ".reach.json",
+                                          ".observations.json")))
 
 
 @pytest.mark.parametrize("path", SECTIONS, ids=[p.stem for p in SECTIONS])

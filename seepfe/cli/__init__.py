@@ -23,7 +23,7 @@ from ..about import CAUTION
 __all__ = ["main", "build_parser", "SUBCOMMANDS"]
 
 #: subcommand modules, in the order ``--help`` lists them
-SUBCOMMANDS = ["build", "check", "solve", "sweep", "plot", "report", "reach"]
+SUBCOMMANDS = ["build", "check", "solve", "sweep", "calibrate", "plot", "report", "reach"]
 
 
 def build_parser() -> argparse.ArgumentParser:
