@@ -7,7 +7,8 @@ import logging
 
 from ..text import table
 
-__all__ = ["table", "add_section_args", "add_solve_args", "solve_section", "parser_for", "EXIT_CODES"]
+__all__ = ["table", "add_section_args", "add_solve_args", "solve_section", "parser_for", "EXIT_CODES",
+           "check_out_dir"]
 
 log = logging.getLogger("seepfe")
 
@@ -37,11 +38,19 @@ def _positive(text: str) -> float:
     return v
 
 
+def check_out_dir(path, sweep: bool = False) -> None:
+    """Check ``--out`` before any long solve: not the current folder, replaceable (only a folder seepfe
+    wrote, holding nothing else) or a sweep folder, and writable; one-line SeepfeError otherwise."""
+    from ..output import check_out
+    check_out(path, sweep=sweep)
+
+
 def add_section_args(p, out: bool = True) -> None:
     """SECTION, --out DIR (optional) and --order, --size of the mesh."""
     p.add_argument("section", help="section file (JSON)")
     if out:
-        p.add_argument("--out", required=True, help="output folder (replaced whole on success)")
+        p.add_argument("--out", required=True, help="output folder, replaced whole on success; only an empty "
+                       "folder or one seepfe wrote (holding nothing else) is replaced, anything else is refused")
     p.add_argument("--order", type=int, choices=(1, 2), default=None, help="element order (default: file, 2)")
     p.add_argument("--size", type=_positive, default=None,
                    help="element size, in the section file's length unit (default: the file's mesh.size)")
