@@ -42,7 +42,7 @@ from shapely.ops import linemerge, unary_union
 
 from .conductivity import conductivity_tensor
 from .errors import SectionError
-from .schema import Conductivity, Length, PositiveLength, SectionSpec
+from .schema import Conductivity, Length, Name, PositiveLength, SectionSpec
 from .units import Dim
 
 __all__ = ["apply", "flows", "RELIEF_WELL_LIMITS", "CutoffWall", "LandsideBerm", "RiversideBlanket",
@@ -72,7 +72,7 @@ Side = Optional[Literal["left", "right"]]
 
 class _Remedy(BaseModel):
     model_config = _CFG
-    name: Optional[Annotated[str, Field(min_length=1)]] = Field(
+    name: Optional[Name] = Field(
         None, description="name of the zone/boundary it makes (default: its type in words)")
 
 
@@ -84,14 +84,14 @@ class CutoffWall(_Remedy):
     top: Optional[Length] = Field(None, description="top elevation, m (default: top of the section at x)")
     bottom: Length = Field(description="bottom (tip) elevation, m")
     thickness: NonNegLength = Field(description="m; 0 = impervious sheet pile")
-    material: Optional[str] = Field(None, description="material of the wall (a key of 'materials')")
+    material: Optional[Name] = Field(None, description="material of the wall (a key of 'materials')")
     k: Optional[Conductivity] = Field(None, description="isotropic conductivity of the wall, m/s (instead of material)")
     mesh_size: Optional[PositiveLength] = Field(None, description="element size along the wall, m "
                                                                   "(default: thickness / 2, at most the mesh size)")
 
 
 class _OnGround(_Remedy):
-    embankment: Optional[str] = Field(None, description="zone whose toe is used (default: zone 'embankment')")
+    embankment: Optional[Name] = Field(None, description="zone whose toe is used (default: zone 'embankment')")
     toe_x: Optional[Length] = Field(None, description="x of the toe, m (instead of the embankment zone)")
     landside: Side = Field(None, description="direction of the landside (default: away from the boundary "
                                              "with the highest head)")
@@ -104,7 +104,7 @@ class LandsideBerm(_OnGround):
     length: PositiveLength = Field(description="horizontal length from the toe, m")
     thickness_toe: PositiveLength = Field(description="thickness at the toe, m")
     thickness_end: NonNegLength = Field(description="thickness at the landside end, m")
-    material: str
+    material: Name
 
 
 class RiversideBlanket(_OnGround):
@@ -113,7 +113,7 @@ class RiversideBlanket(_OnGround):
     type: Literal["riverside_blanket"]
     length: PositiveLength = Field(description="horizontal length from the riverside toe, m")
     thickness: PositiveLength = Field(description="m")
-    material: str
+    material: Name
 
 
 class ToeDrain(_OnGround):

@@ -13,7 +13,6 @@ import hashlib
 import math
 import json
 import os
-import re
 import types
 import typing
 from dataclasses import dataclass, field
@@ -108,49 +107,20 @@ def _unknown(kind: str, name: str, known: list[str]) -> str:
 
 
 def _read(path_or_dict) -> tuple[dict, str]:
+    from .jsonin import check_tree, json_type, read_json
     if isinstance(path_or_dict, dict):
+        try:
+            check_tree(path_or_dict)
+        except SectionError as e:
+            raise SectionError(f"<dict>: {e}") from None
         return path_or_dict, "<dict>"
     if isinstance(path_or_dict, (str, os.PathLike)):
-        p = Path(path_or_dict)
-        label = str(p)
-        try:
-            raw = p.read_bytes()
-        except OSError as e:
-            raise SectionError(f"{label}: cannot read the file ({e.strerror or e})") from None
-        try:
-            text = raw.decode("utf-8-sig")
-        except UnicodeDecodeError as e:
-            line = raw[:e.start].count(b"\n") + 1
-            col = e.start - (raw.rfind(b"\n", 0, e.start) + 1) + 1
-            raise SectionError(f"{label}: not UTF-8 text at line {line}, column {col} (byte 0x{raw[e.start]:02x}); "
-                               "save the file as UTF-8") from None
-        try:
-            data = json.loads(text, parse_constant=_reject_constant)
-        except json.JSONDecodeError as e:
-            raise SectionError(f"{label}: not valid JSON at line {e.lineno}, column {e.colno}: {e.msg}") from None
-        except ValueError as e:
-            raise SectionError(f"{label}: {_constant_where(text)}{e}") from None
-        except RecursionError:
-            raise SectionError(f"{label}: not valid JSON: nested too deeply") from None
+        label = str(Path(path_or_dict))
+        data = read_json(path_or_dict, "section file")
         if not isinstance(data, dict):
-            raise SectionError(f"{label}: the top level must be a JSON object {{...}}, got {type(data).__name__}")
+            raise SectionError(f"{label}: the top level must be a JSON object {{...}}, got {json_type(data)}")
         return data, label
     raise SectionError(f"load_section takes a path or a dict, got {type(path_or_dict).__name__}")
-
-
-def _reject_constant(name: str):
-    raise ValueError(f"'{name}' is not a number JSON allows; write a finite number")
-
-
-def _constant_where(text: str) -> str:
-    """'line L, column C: ' of the first NaN/Infinity literal outside strings (or '')."""
-    blank = re.sub(r'"(?:\\.|[^"\\])*"', lambda m: " " * len(m.group()), text)
-    m = re.search(r"-?\b(?:NaN|Infinity)\b", blank)
-    if not m:
-        return ""
-    line = text.count("\n", 0, m.start()) + 1
-    col = m.start() - (text.rfind("\n", 0, m.start()) + 1) + 1
-    return f"line {line}, column {col}: "
 
 
 def _label(data: Any, loc: tuple) -> str:
