@@ -370,6 +370,9 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
     ee = np.append(ee, len(edges) - 1)
     node = np.append(node, True)
     if spacing:
+        if not (sb[-1] - sa[0]) / spacing <= 1_000_000:
+            raise SectionError(f"{sec.source}: checks.spacing: {spacing:g} m would place more than a million check "
+                               f"points along '{name}'; use a larger spacing")
         s_all = np.arange(sa[0], sb[-1] + 1e-12, spacing)
         ke = np.clip(np.searchsorted(sb, s_all), 0, len(edges) - 1)
         ts = np.clip((s_all - sa[ke]) / np.maximum(sb[ke] - sa[ke], 1e-300), 0, 1)
