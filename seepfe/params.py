@@ -14,8 +14,8 @@ keys ``title`` and ``description`` and the ``project`` block (the report's title
 
 API for sweeps and searches:
 
-* :func:`resolve` (data) -> a new dict with every expression replaced by its value and the
-  ``parameters`` key removed; the input is not changed.
+* :func:`resolve` (data) -> a new dict with every expression replaced by its value (a whole number
+  as an int, so it also fills a count) and the ``parameters`` key removed; the input is not changed.
 * :func:`with_values` (data, overrides) -> a deep copy of the *unresolved* data with overrides
   applied. A key is a declared parameter name (``"stage"``) or a dotted path into the file
   (``"materials.sand.kx"``, ``"boundaries.river.head"``, ``"zones.core.polygon.2.1"``): list items
@@ -436,7 +436,9 @@ def resolve(data: dict, label: str = "<dict>") -> dict:
             return [walk(v, path + [_step_list(node, i)]) for i, v in enumerate(node)]
         if _is_expr(node):
             try:
-                return evaluate(node, values)
+                v = evaluate(node, values)
+                # a whole number stays whole, so '=n' also fills a count (mesh.max_elements, mesh.order)
+                return int(v) if v.is_integer() and abs(v) < 2.0 ** 53 else v
             except SectionError as e:
                 raise SectionError(f"{label}: {_item_label(path)}: {e}") from None
         return node

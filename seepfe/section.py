@@ -27,6 +27,7 @@ from shapely.geometry import Point as ShapelyPoint
 from .conductivity import conductivity_tensor
 from .errors import SectionError
 from .geometry import fmt_xy
+from .jsonin import json_type
 from .schema import K_RANGE, BoundarySpec, MaterialSpec, SectionSpec
 from .units import SI, Units
 
@@ -109,7 +110,7 @@ def _unknown(kind: str, name: str, known: list[str]) -> str:
 
 
 def _read(path_or_dict) -> tuple[dict, str]:
-    from .jsonin import check_tree, json_type, read_json
+    from .jsonin import check_tree, read_json
     if isinstance(path_or_dict, dict):
         try:
             check_tree(path_or_dict)
@@ -122,7 +123,7 @@ def _read(path_or_dict) -> tuple[dict, str]:
         if not isinstance(data, dict):
             raise SectionError(f"{label}: the top level must be a JSON object {{...}}, got {json_type(data)}")
         return data, label
-    raise SectionError(f"load_section takes a path or a dict, got {type(path_or_dict).__name__}")
+    raise SectionError(f"load_section takes a path or a dict, got {type(path_or_dict).__name__}")  # API misuse
 
 
 def _label(data: Any, loc: tuple) -> str:
@@ -220,7 +221,7 @@ def _format_pydantic(e: ValidationError, data: dict, label: str) -> str:
     elif t in ("float_type", "int_type", "string_type", "bool_type", "list_type", "dict_type", "model_type",
                "float_parsing", "int_from_float", "literal_error", "model_attributes_type"):
         got = err.get("input")
-        shown = json.dumps(got) if isinstance(got, (int, float, str, bool, type(None))) else type(got).__name__
+        shown = _short(json.dumps(got)) if isinstance(got, (int, float, str, bool, type(None))) else json_type(got)
         want = {"float_type": "a number", "int_type": "a whole number", "string_type": "a string",
                 "bool_type": "true or false", "list_type": "a list", "dict_type": "an object {...}",
                 "model_type": "an object {...}", "model_attributes_type": "an object {...}",
@@ -228,10 +229,15 @@ def _format_pydantic(e: ValidationError, data: dict, label: str) -> str:
         msg = (f"expected {want}, got {shown}" if want else str(err["msg"]).lower() + f", got {shown}")
     else:
         got = err.get("input")
-        tail = f", got {json.dumps(got)}" if isinstance(got, (int, float, str, bool)) else ""
+        tail = f", got {_short(json.dumps(got))}" if isinstance(got, (int, float, str, bool)) else ""
         msg = str(err["msg"]).lower() + tail
     more = f" (and {len(errs) - 1} more)" if len(errs) > 1 else ""
     return f"{label}: {where + ': ' if where else ''}{msg}{more}"
+
+
+def _short(text: str, limit: int = 60) -> str:
+    """A value shown in a message, shortened when long (a 400-digit number, a pasted paragraph)."""
+    return text if len(text) <= limit else f"{text[:40]}...{text[-10:]} ({len(text)} characters)"
 
 
 def _hash(data: dict) -> str:
