@@ -16,29 +16,26 @@ Output folders (``atomic_dir``)
     one behind, and the next run into the same folder removes those whose process is gone.  Folders
     are made with ``os.mkdir`` and so follow the user's umask (a checking engineer can open them).
 
-CSV (``write_table``)
-    Every CSV file seepfe writes goes through :func:`write_table`.  Numbers are written as numbers;
-    a text cell that a spreadsheet would read as a formula (starting with ``=``, ``+``, ``-``, ``@``,
-    a tab or a carriage return) is written with a leading apostrophe, so it shows as text.
+CSV
+    Every CSV file goes through :mod:`seepfe.csvfile` (re-exported here as ``write_csv`` and
+    ``write_table``): numbers stay numbers, text a spreadsheet would read as a formula is neutralised.
 """
 
 from __future__ import annotations
 
 import contextlib
 import hashlib
-import io
 import json
-import math
 import os
 import secrets
 import shutil
 import socket
 import stat
 from pathlib import Path
-from typing import Iterable, Sequence
 
 import numpy as np
 
+from .csvfile import csv_cell, write_csv, write_table
 from .errors import SeepfeError
 from .text import one_line
 
@@ -187,19 +184,15 @@ def _probe_writable(folder: Path, what: str) -> None:
         raise SeepfeError(f"{folder}: cannot write {what} there ({e.strerror or e} in '{p}')") from None
 
 
-def check_out(out: str | os.PathLike, sweep: bool = False, what: str = "--out") -> None:
-    """Everything that can be known about an output folder before a long solve: it is not the current
-    folder, it may be replaced (results) or is a sweep folder, and it can be written.  One-line
-    SeepfeError otherwise."""
+def check_out(out: str | os.PathLike, what: str = "--out") -> None:
+    """Everything that can be known about a results folder before a long solve: it is not the current
+    folder, it may be replaced, and it can be written.  One-line SeepfeError otherwise.  (A sweep folder:
+    :func:`seepfe.sweep.api.check_sweep_folder`.)"""
     out = Path(out)
     if not str(out).strip():
         raise SeepfeError(f"{what}: empty folder name")
-    if not sweep:
-        check_replaceable(out, what)
-        _probe_writable(out.absolute().parent, what)
-        return
-    from .sweep.api import check_sweep_folder
-    check_sweep_folder(out)
+    check_replaceable(out, what)
+    _probe_writable(out.absolute().parent, what)
 
 
 def _pid_alive(pid: int) -> bool:
@@ -273,53 +266,6 @@ def atomic_dir(out: str | os.PathLike):
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
-
-
-# ---------------------------------------------------------------------------- CSV
-_FORMULA_START = ("=", "+", "-", "@", "\t", "\r", "\n")
-
-
-def csv_cell(v, fmt: str = "%.10g") -> str:
-    """One CSV cell: numbers as numbers (nan, inf, -inf spelt so), True/False as yes/no, and text that a
-    spreadsheet would read as a formula prefixed with an apostrophe (shown as text)."""
-    if isinstance(v, (bool, np.bool_)):
-        return "yes" if v else "no"
-    if isinstance(v, (int, np.integer)):
-        return str(int(v))
-    if isinstance(v, (float, np.floating)):
-        v = float(v)
-        if math.isnan(v):
-            return "nan"
-        if math.isinf(v):
-            return "inf" if v > 0 else "-inf"
-        return fmt % v
-    s = "" if v is None else str(v)
-    return "'" + s if s.startswith(_FORMULA_START) else s
-
-
-def write_table(path: Path, header: Sequence[str], rows: Iterable[Sequence] | np.ndarray,
-                fmt: str = "%.10g") -> None:
-    """Write a CSV file: the header (names carry units) and rows of cells (see :func:`csv_cell`).
-
-    The one CSV writer of seepfe.  ``rows`` may be a 2-D float array (written fast, every cell a number)."""
-    import csv
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow([csv_cell(h) for h in header])
-    if isinstance(rows, np.ndarray):
-        if rows.size:
-            np.savetxt(buf, np.asarray(rows, float), delimiter=",", fmt=fmt)
-    else:
-        for r in rows:
-            w.writerow([csv_cell(c, fmt) for c in r])
-    Path(path).write_text(buf.getvalue(), encoding="utf-8")
-
-
-def write_csv(path: Path, columns: dict[str, np.ndarray], fmt: str = "%.10g") -> None:
-    """Write named numeric columns (header names carry units) to a CSV file."""
-    names = list(columns)
-    data = np.column_stack([np.asarray(columns[n], float) for n in names]) if names else np.zeros((0, 0))
-    write_table(path, names, data, fmt)
 
 
 # ---------------------------------------------------------------------------- JSON, result files

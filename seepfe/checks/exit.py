@@ -114,10 +114,9 @@ class ExitChecks:
     def to_csv(self, path, units=None) -> None:
         """Write one row per check point; the header names carry units (gradients m/m, FS -). With
         ``units`` (seepfe.units.Units) other than SI, the lengths follow again in those units."""
+        from ..csvfile import write_csv
         from ..units import display_columns
-        cols = display_columns(self.columns(), units)
-        np.savetxt(path, np.column_stack([np.asarray(v, float) for v in cols.values()]), delimiter=",",
-                   header=",".join(cols), comments="", fmt="%.10g")
+        write_csv(path, display_columns(self.columns(), units))
 
     def to_dict(self) -> dict:
         """Plain-data summary for summary.json (governing values, criteria, methods, notes)."""

@@ -41,8 +41,12 @@ def _positive(text: str) -> float:
 def check_out_dir(path, sweep: bool = False) -> None:
     """Check ``--out`` before any long solve: not the current folder, replaceable (only a folder seepfe
     wrote, holding nothing else) or a sweep folder, and writable; one-line SeepfeError otherwise."""
-    from ..output import check_out
-    check_out(path, sweep=sweep)
+    if sweep:
+        from ..sweep.api import check_sweep_folder
+        check_sweep_folder(path)
+    else:
+        from ..output import check_out
+        check_out(path)
 
 
 def add_section_args(p, out: bool = True) -> None:

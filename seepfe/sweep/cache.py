@@ -5,10 +5,14 @@ renamed, so a sweep killed at any moment leaves only whole files (stray ``*.tmp`
 and cleaned).  This folder is filled while the sweep runs, by design: it is what makes a sweep
 resumable.  The final tables and plots are written all at once elsewhere.
 
-A cached record is used only if it still has the shape of a record (:data:`RECORD_SHAPE`, checked by
-:func:`record_fault`): a file altered by hand or by a fault of the disk, whose hash still matches, is
-solved again instead of filling the table with nonsense.  When the record format changes, change
-:data:`RECORD_SHAPE` (and bump ``case.CASE_FORMAT``); nothing else here needs to change.
+A cached record is used only if it still has the shape of a record (:func:`record_fault`): a file
+altered by hand or by a fault of the disk, whose hash still matches, is solved again instead of
+filling the table with nonsense.  The shape is defined in one place, :class:`seepfe.records.CaseRecord`
+(the pydantic model of the record): every one of its keys must be present (a solved case writes them
+all), the values must validate against it strictly, every number must be finite, the status must be
+one a cached case can have (:data:`STATUSES`), and the record must answer its case (a head for every
+probe point).  When the record format changes, change ``CaseRecord`` (and bump ``case.CASE_FORMAT``);
+nothing here needs to change.
 """
 
 from __future__ import annotations
@@ -22,97 +26,58 @@ from typing import Any, Optional
 
 from ..errors import SeepfeError
 
-__all__ = ["CaseCache", "RECORD_SHAPE", "record_fault", "STATUSES"]
+__all__ = ["CaseCache", "record_fault", "STATUSES"]
 
 #: statuses a cached record may carry (failed cases are never cached)
 STATUSES = ("ok", "not converged")
 #: largest case file read back, bytes (a record is a few kB to a few hundred kB)
 MAX_CASE_BYTES = 16 * 1024 * 1024
 
-# Value kinds of RECORD_SHAPE:
-#   "finite"   a finite number                  "count"   a whole number >= 1
-#   "float?"   a finite number, None (nan) or "inf"/"-inf" (how case._jf writes them)
-#   "text"     a string                          "status"  one of STATUSES
-#   {"key": kind, ...}   an object with exactly these keys (all required)
-#   ("map", kind)        an object of name -> kind (any names)
-#   ("list", kind)       a list of kind
-#: the shape of a case record (seepfe.sweep.case.run_case), the one place that defines it
-RECORD_SHAPE: dict = {
-    "status": "status",
-    "flows_m3_s_per_m": ("map", "finite"),
-    "heads_m": ("map", "float?"),
-    "governing": {"exit_gradient_max": "float?", "exit_gradient_x_m": "float?", "exit_gradient_boundary": "text",
-                  "fs_min": "float?", "fs_min_x_m": "float?", "fs_min_boundary": "text"},
-    "exit": ("map", {"x_m": ("list", "finite"), "gradient": ("list", "float?"), "fs": ("list", "float?")}),
-    "fs_method": "text",
-    "warnings": ("list", "text"),
-    "nodes": "count",
-    "balance_relative_error": "finite",
-    "time_s": "finite",
-}
 
-
-def _fault(v: Any, kind, where: str) -> Optional[str]:
-    if isinstance(kind, dict):
-        if not isinstance(v, dict):
-            return f"{where}: not an object"
-        missing = [k for k in kind if k not in v]
-        if missing:
-            return f"{where}: missing '{missing[0]}'"
-        extra = [k for k in v if k not in kind]
-        if extra:
-            return f"{where}: unexpected '{extra[0]}'"
-        for k, sub in kind.items():
-            f = _fault(v[k], sub, f"{where}.{k}")
-            if f:
-                return f
-        return None
-    if isinstance(kind, tuple):
-        what, sub = kind
-        if what == "map":
-            if not isinstance(v, dict):
-                return f"{where}: not an object"
-            for k, x in v.items():
-                f = _fault(x, sub, f"{where}.{k}")
-                if f:
-                    return f
-            return None
-        if not isinstance(v, list):
-            return f"{where}: not a list"
-        for i, x in enumerate(v):
-            f = _fault(x, sub, f"{where}[{i}]")
-            if f:
-                return f
-        return None
-    num = isinstance(v, (int, float)) and not isinstance(v, bool)
-    if kind == "finite":
-        return None if num and math.isfinite(v) else f"{where}: not a finite number"
-    if kind == "float?":
-        return None if (v is None or v in ("inf", "-inf") or (num and math.isfinite(v))) else \
-            f"{where}: not a number, null or \"inf\""
-    if kind == "count":
-        return None if isinstance(v, int) and not isinstance(v, bool) and v >= 1 else f"{where}: not a count >= 1"
-    if kind == "text":
-        return None if isinstance(v, str) else f"{where}: not a string"
-    if kind == "status":
-        return None if v in STATUSES else f"{where}: not one of {', '.join(STATUSES)}"
-    raise ValueError(f"unknown kind {kind!r} in RECORD_SHAPE")       # pragma: no cover
+def _non_finite(v: Any, where: str) -> Optional[str]:
+    """Where a number in a JSON tree is not finite (iterative)."""
+    stack = [(v, where)]
+    while stack:
+        node, at = stack.pop()
+        if isinstance(node, dict):
+            stack.extend((x, f"{at}.{k}") for k, x in node.items())
+        elif isinstance(node, list):
+            stack.extend((x, f"{at}[{i}]") for i, x in enumerate(node))
+        elif isinstance(node, float) and not math.isfinite(node):
+            return f"{at}: not a finite number"
+    return None
 
 
 def record_fault(record: Any, payload: Optional[dict] = None) -> Optional[str]:
-    """Why ``record`` is not a valid cached case record (None when it is).
+    """Why ``record`` is not a valid cached case record (None when it is); see the module docstring."""
+    from pydantic import ValidationError
 
-    Checks :data:`RECORD_SHAPE` and, with the case ``payload``, that the record answers it: a head
-    for every probe point, an exit profile for every exit boundary asked for."""
-    f = _fault(record, RECORD_SHAPE, "record")
-    if f or payload is None:
+    from ..records import CaseRecord
+    if not isinstance(record, dict):
+        return "record: not an object"
+    missing = [k for k in CaseRecord.model_fields if k not in record]
+    if missing:
+        return f"record: missing '{missing[0]}'"
+    try:
+        CaseRecord.model_validate(record, strict=True)
+    except ValidationError as e:
+        err = e.errors(include_url=False)[0]
+        return f"record.{'.'.join(str(x) for x in err['loc'])}: {err['msg']}"
+    if record["status"] not in STATUSES:
+        return f"record.status: not one of {', '.join(STATUSES)}"
+    if record["governing"] is None:
+        return "record.governing: missing"
+    if record["nodes"] < 1 or record["balance_relative_error"] is None:
+        return "record: no mesh or no balance"
+    f = _non_finite(record, "record")
+    if f:
         return f
-    pts = list((payload.get("points") or {}))
-    if sorted(record["heads_m"]) != sorted(pts):
-        return "record.heads_m: not the probe points of the case"
-    names = payload.get("exit")
-    if names is not None and sorted(record["exit"]) != sorted(names):
-        return "record.exit: not the exit boundaries of the case"
+    if payload is not None:
+        if sorted(record["heads_m"]) != sorted(payload.get("points") or {}):
+            return "record.heads_m: not the probe points of the case"
+        names = payload.get("exit")
+        if names is not None and not set(record["exit"]) <= set(names):
+            return "record.exit: not the exit boundaries of the case"
     return None
 
 

@@ -32,7 +32,7 @@ def _fmt(v) -> str:
 def write_table(path: Path, columns: list[str], rows: list[dict]) -> None:
     """Write rows (dicts) as CSV with the given header (names carry units), through seepfe's one CSV
     writer (numbers stay numbers; text a spreadsheet would read as a formula is neutralised)."""
-    from ..output import write_table as _write
+    from ..csvfile import write_table as _write
     _write(path, columns, ([r.get(c, "") for c in columns] for r in rows))
 
 

@@ -43,6 +43,8 @@ def _finite(v: float) -> float:
 
 Finite = Annotated[float, AfterValidator(_finite)]
 Length = Annotated[Finite, Dim("length")]
+#: default of the sweep key max_cases: most cases (solves) a sweep file may ask for
+MAX_CASES = 20_000
 _CFG = ConfigDict(extra="forbid", frozen=True)
 
 
@@ -135,6 +137,10 @@ class TargetSpec(BaseModel):
             raise ValueError(f"'range' must be [low, high] with low < high, got {self.range}")
         if self.tolerance >= self.range[1] - self.range[0]:
             raise ValueError("'tolerance' must be smaller than the range")
+        far = max(abs(self.range[0]), abs(self.range[1]))
+        if self.tolerance < 16 * math.ulp(far):
+            raise ValueError(f"'tolerance' {self.tolerance:g} is finer than floating-point numbers can tell apart "
+                             f"near {far:g} (their spacing there is {math.ulp(far):.1e}); use a larger tolerance")
         return self
 
 
@@ -196,12 +202,41 @@ class SweepSpec(BaseModel):
     criterion: CriterionSpec = Field(default_factory=CriterionSpec)
     targets: list[TargetSpec] = Field(default_factory=list)
     fragility: Optional[FragilitySpec] = None
+    max_cases: Annotated[int, Field(ge=1)] = Field(
+        MAX_CASES, description="most cases the table and the fragility may ask for together (each case is one "
+                               "solve); raise it to run a larger sweep on purpose")
 
     @model_validator(mode="after")
     def _something(self):
         if not self.vary and not self.targets and self.fragility is None:
             raise ValueError("nothing to do: give 'vary', 'targets' or 'fragility'")
+        parts, total = [], 0
+        if self.vary:
+            counts = [_count(v) for v in self.vary.values()]
+            n = math.prod(counts) if self.mode == "grid" else sum(counts)
+            parts.append(f"table: {' x '.join(map(str, counts)) if self.mode == 'grid' else ' + '.join(map(str, counts))}")
+            total += n
+        if self.fragility is not None:
+            n_st = _count(self.fragility.stages)
+            parts.append(f"fragility: {self.fragility.samples} samples x {n_st} stages")
+            total += self.fragility.samples * n_st
+        if total > self.max_cases:
+            shown = f"{total:,}" if total < 10**15 else "more than 10^15"
+            raise ValueError(f"the sweep asks for {shown} cases ({'; '.join(parts)}), more than max_cases = "
+                             f"{self.max_cases:,}; each case is one solve: raise \"max_cases\" in the sweep file "
+                             "if you mean it")
         return self
+
+
+def _count(v) -> int:
+    """Number of values of a 'vary' entry or a range, without making them."""
+    if isinstance(v, list):
+        return len(v)
+    if v.values is not None:
+        return len(v.values)
+    if v.count is not None:
+        return v.count
+    return int(math.floor((v.stop - v.start) / v.step + 1e-9)) + 1
 
 
 def _format(e: ValidationError, label: str) -> str:
