@@ -158,10 +158,11 @@ def mesh_quality(points: np.ndarray, tri: np.ndarray) -> tuple[float, float]:
     L = np.linalg.norm(e, axis=2)
     area = 0.5 * np.abs(e[:, 0, 0] * e[:, 2, 1] - e[:, 0, 1] * e[:, 2, 0])
     a, b, c = L[:, 0], L[:, 1], L[:, 2]
-    q = 16.0 * area**2 / (a * b * c * (a + b + c))  # = 2 r_in / R
-    cosang = np.stack([-(e[:, 0] * e[:, 2]).sum(1) / (a * c), -(e[:, 0] * e[:, 1]).sum(1) / (a * b),
-                       -(e[:, 1] * e[:, 2]).sum(1) / (b * c)], axis=1)
-    ang = np.degrees(np.arccos(np.clip(cosang, -1, 1)))
+    with np.errstate(invalid="ignore", divide="ignore"):   # a degenerate triangle counts as 0 deg, quality 0
+        q = np.nan_to_num(16.0 * area**2 / (a * b * c * (a + b + c)), nan=0.0)  # = 2 r_in / R
+        cosang = np.stack([-(e[:, 0] * e[:, 2]).sum(1) / (a * c), -(e[:, 0] * e[:, 1]).sum(1) / (a * b),
+                           -(e[:, 1] * e[:, 2]).sum(1) / (b * c)], axis=1)
+    ang = np.nan_to_num(np.degrees(np.arccos(np.clip(cosang, -1, 1))), nan=0.0)
     return float(ang.min()), float(q.min())
 
 
@@ -341,6 +342,33 @@ def load_gmsh():
     return gmsh
 
 
+def _signal_handlers() -> dict:
+    """Python's signal handlers, to put back after gmsh: gmsh resets SIGTERM, SIGHUP and SIGPIPE to the
+    system default when it starts, so a later SIGTERM would kill the process without its cleanup (the
+    removal of a temporary folder, stopping the sweep workers) and a closed pipe would kill it silently
+    instead of raising an error (a sweep worker killed by the out-of-memory killer)."""
+    import signal
+    out = {}
+    for sig in signal.valid_signals():
+        try:
+            h = signal.getsignal(sig)
+        except (ValueError, OSError):
+            continue
+        if h is not None:
+            out[sig] = h
+    return out
+
+
+def _restore_signal_handlers(handlers: dict) -> None:
+    import signal
+    for sig, h in handlers.items():
+        try:
+            if signal.getsignal(sig) is h:
+                signal.signal(sig, h)          # installs the handler at the C level again
+        except (ValueError, OSError, RuntimeError):   # not the main thread, or a signal that cannot be set
+            pass
+
+
 def _gmsh_mesh(section: Section, size: float, scale: float):
     """Coarse P1 mesh from gmsh at sizes multiplied by scale. Returns points, tri, zone, bedges, btag."""
     gmsh = load_gmsh()
@@ -348,6 +376,7 @@ def _gmsh_mesh(section: Section, size: float, scale: float):
     g = section.graph
     spec = section.spec.mesh
     S = size * scale
+    handlers = _signal_handlers()
     gmsh.initialize(readConfigFiles=False, interruptible=False)
     try:
         gmsh.option.setNumber("General.Terminal", 0)
@@ -435,6 +464,7 @@ def _gmsh_mesh(section: Section, size: float, scale: float):
             rd_l.append(np.tile(b - a if g.barrier_forward[s] else a - b, (len(e), 1)))
     finally:
         gmsh.finalize()
+        _restore_signal_handlers(handlers)
     tri = np.searchsorted(tags, np.concatenate(tri_l))
     bedges = np.searchsorted(tags, np.concatenate(be_l))
     redges = np.searchsorted(tags, np.concatenate(re_l))

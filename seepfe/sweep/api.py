@@ -379,7 +379,7 @@ def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts
                 results = [c for c in rep.columns if c.startswith(("flow_", "head_"))]
                 if any(not math.isnan(r["exit_gradient_max"]) for r in rep.table):
                     results += ["exit_gradient_max", "fs"]
-                for key, col in columns.items():
+                for key, col in (columns.items() if results else ()):      # nothing solved: no figure
                     rows = [r for r in rep.table if r["varied"] in (key, "grid")]
                     others = [c for k, c in columns.items() if k != key] if spec.mode == "grid" else []
                     files += report.plot_vs_parameter(tmp, key, col, rows, results, others, rep.fs_required, title)
