@@ -84,10 +84,9 @@ _VALUE = {"phreatic_line": ("pressure_head_m", "length"),
 
 
 def _write_csv(path: Path, columns: dict) -> None:
-    """Named columns (names carry units) as CSV (output.py calls this module, so it writes its own)."""
-    names = list(columns)
-    data = np.column_stack([np.asarray(columns[n], float) for n in names]) if names else np.empty((0, 0))
-    np.savetxt(path, data.reshape(-1, len(names)), delimiter=",", header=",".join(names), comments="", fmt="%.10g")
+    """Named columns (names carry units) as CSV, through seepfe's one CSV writer (seepfe.csvfile)."""
+    from .csvfile import write_csv
+    write_csv(path, columns)
 
 
 def _csv(path: Path, items: list, value_col: str, dim: str, units) -> None:

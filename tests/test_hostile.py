@@ -54,8 +54,9 @@ def _write(path: Path, data) -> Path:
 
 
 def _one_line_error(capsys, *words):
-    err = capsys.readouterr().err.strip().splitlines()
-    assert len(err) == 1 and err[0].startswith("seepfe: error:"), err
+    lines = capsys.readouterr().err.strip().splitlines()
+    err = [ln for ln in lines if "━" not in ln]            # a sweep's progress bars go to stderr too
+    assert len(err) == 1 and err[0].startswith("seepfe: error:") and lines[-1] == err[0], lines
     for w in words:
         assert w in err[0], (w, err[0])
     return err[0]
@@ -121,16 +122,41 @@ def test_user_files_survive_every_command(tmp_path, capsys, monkeypatch, cmd):
     assert sorted(p.name for p in tmp_path.iterdir()) == ["work"]          # no temporary folder beside it
 
 
-@pytest.mark.parametrize("cmd", ["solve", "plot", "report"])
+def test_a_folder_with_subfolders_is_replaced_whole_and_follows_the_umask(tmp_path):
+    from seepfe.output import atomic_dir
+    out = tmp_path / "out"
+    old = os.umask(0o022)
+    try:
+        for run in range(2):
+            with atomic_dir(out) as tmp:
+                (tmp / "figures" / "deep").mkdir(parents=True)
+                (tmp / "figures" / "deep" / f"f{run}.png").write_bytes(b"png")
+                (tmp / "summary.json").write_text("{}")
+    finally:
+        os.umask(old)
+    assert sorted(p.relative_to(out).as_posix() for p in out.rglob("*")) == [
+        ".seepfe", "figures", "figures/deep", "figures/deep/f1.png", "summary.json"]
+    for d in (out, out / "figures", out / "figures" / "deep"):
+        assert d.stat().st_mode & 0o777 == 0o755, d
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["out"]
+
+
+@pytest.mark.parametrize("cmd", ["solve"])
 def test_only_a_folder_seepfe_wrote_and_left_alone_is_replaced(tmp_path, capsys, cmd):
     sec = _write(tmp_path / "levee.json", TINY)
     out = tmp_path / "out"
-    assert main(_cmd(cmd, sec, out)) == 0
+    old = os.umask(0o022)
+    try:
+        assert main(_cmd(cmd, sec, out)) == 0
+    finally:
+        os.umask(old)
+    for d in [out] + [p for p in out.rglob("*") if p.is_dir()]:            # figures/ for a report
+        assert d.stat().st_mode & 0o777 == 0o755, d     # the umask (mkdtemp gave 0700: a checker could not open it)
     manifest = json.loads((out / ".seepfe").read_text())
     assert manifest["written_by"] == "seepfe" and manifest["files"]
     assert set(manifest["files"]) == {p.relative_to(out).as_posix() for p in out.rglob("*")
                                       if p.is_file() and p.name != ".seepfe"}
-    assert main(_cmd(cmd, sec, out)) == 0                     # its own folder: replaced
+    assert main(_cmd(cmd, sec, out)) == 0                     # its own folder (subfolders too): replaced
     capsys.readouterr()
     (out / "my notes.txt").write_text("keep")                 # a file added by hand: refused
     assert main(_cmd(cmd, sec, out)) == 2
@@ -163,15 +189,16 @@ def test_out_is_checked_before_any_solve(tmp_path, capsys, monkeypatch, cmd, whe
     assert sorted(p.name for p in (tmp_path / "in").iterdir()) == ["levee.json"] + (["sw.json"] if cmd == "sweep" else [])
 
 
-def test_folders_follow_the_umask(tmp_path, capsys):
-    old = os.umask(0o022)
+@pytest.mark.parametrize("mask, mode", [(0o022, 0o755), (0o027, 0o750), (0o002, 0o775)])
+def test_folders_follow_the_umask(tmp_path, capsys, mask, mode):
+    old = os.umask(mask)
     try:
         sec = _write(tmp_path / "levee.json", TINY)
-        assert main(["report", str(sec), "--out", str(tmp_path / "deep" / "out")]) == 0
+        assert main(["solve", str(sec), "--out", str(tmp_path / "deep" / "out")]) == 0
     finally:
         os.umask(old)
-    for d in (tmp_path / "deep", tmp_path / "deep" / "out", tmp_path / "deep" / "out" / "figures"):
-        assert d.stat().st_mode & 0o777 == 0o755, d          # mkdtemp gave 0700: a checker could not open it
+    for d in (tmp_path / "deep", tmp_path / "deep" / "out"):
+        assert d.stat().st_mode & 0o777 == mode, d
 
 
 def test_partial_folders_of_killed_runs_are_cleaned(tmp_path, capsys):

@@ -194,12 +194,15 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
         if out is not None:
             _prepare_out(out)
             stack.enter_context(_locked(out))
-        return _run(sec, data, label, spec, slabel, sopts, points, fs_required, criteria, out, workers, scheduler,
-                    progress, max_solves, plots, runner, t0)
+        return _run(sec=sec, data=data, label=label, spec=spec, slabel=slabel, sopts=sopts, points=points,
+                    fs_required=fs_required, criteria=criteria, out=out, workers=workers, scheduler=scheduler,
+                    progress=progress, max_solves=max_solves, plots=plots, runner=runner, t0=t0, fu=fu, su=su,
+                    sweep=sweep)
 
 
-def _run(sec, data, label, spec, slabel, sopts, points, fs_required, criteria, out, workers, scheduler, progress,
-         max_solves, plots, runner, t0) -> SweepReport:
+def _run(*, sec, data, label, spec, slabel, sopts, points, fs_required, criteria, out, workers, scheduler, progress,
+         max_solves, plots, runner, t0, fu, su, sweep) -> SweepReport:
+    """The body of :func:`run_sweep`, with the sweep folder prepared and held."""
     own = runner is None
     if own:
         runner = Runner(cache_dir=(out / "cases") if out is not None else None, workers=workers,
