@@ -18,7 +18,8 @@ EXIT_CODES = """exit codes:
   2    bad input or options: one line on stderr names the file, the item and the fault; nothing is written
   3    a solve did not converge: the best iterate is written and marked, and must not be used
   4    a sweep stopped early on --max-solves: finished cases are kept; run the same command to go on
-  130  interrupted (Ctrl-C)"""
+  130  interrupted (Ctrl-C)
+  143  stopped by SIGTERM (129: SIGHUP): temporary folders removed, sweep workers stopped"""
 
 
 def parser_for(sub, name: str, help: str, description: str, examples: str):
