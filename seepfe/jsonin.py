@@ -18,7 +18,7 @@ from typing import Any
 
 from .errors import SectionError
 
-__all__ = ["read_json", "check_tree", "MAX_INPUT_BYTES", "MAX_DEPTH", "MAX_INT_DIGITS", "json_type"]
+__all__ = ["read_json", "read_text", "read_bytes", "check_tree", "MAX_INPUT_BYTES", "MAX_DEPTH", "MAX_INT_DIGITS", "json_type"]
 
 #: largest input file read, bytes (a section with a 100,000-vertex polygon is about 4 MB)
 MAX_INPUT_BYTES = 64 * 1024 * 1024
@@ -98,19 +98,37 @@ def _decode(raw: bytes, label: str) -> str:
                            "save the file as UTF-8") from None
 
 
-def read_json(path: str | os.PathLike, what: str = "file", cap: int = MAX_INPUT_BYTES) -> Any:
-    """Read, decode and parse one JSON input file; one-line SectionError (starting with the path) on any fault."""
+def read_bytes(path: str | os.PathLike, what: str = "file", cap: int = MAX_INPUT_BYTES, label: str | None = None) -> bytes:
+    """The bytes of one input file, read with a size cap (``/dev/zero`` or a wrong file never fills the
+    memory); one-line SectionError starting with ``label`` (default: the path) on any fault."""
     p = Path(path)
-    label = str(p)
+    label = str(p) if label is None else label
+    where = "" if label == str(p) else f"{p}: "
     if p.is_dir():
-        raise SectionError(f"{label}: is a folder; give the {what} (a JSON file)")
+        raise SectionError(f"{label}: {where}is a folder; give the {what}")
     try:
         with open(p, "rb") as fh:
             raw = fh.read(cap + 1)
     except OSError as e:
-        raise SectionError(f"{label}: cannot read the file ({e.strerror or e})") from None
+        raise SectionError(f"{label}: {where}cannot read the file ({e.strerror or e})") from None
     if len(raw) > cap:
-        raise SectionError(f"{label}: larger than {cap // (1024 * 1024)} MiB; not a {what} (give the JSON file)")
+        raise SectionError(f"{label}: {where}larger than {cap // (1024 * 1024)} MiB; not a {what}")
+    return raw
+
+
+def read_text(path: str | os.PathLike, what: str = "file", cap: int = MAX_INPUT_BYTES, label: str | None = None) -> str:
+    """The text of one UTF-8 input file (a UTF-16 file gets a hint), read with a size cap."""
+    raw = read_bytes(path, what, cap, label)
+    p = Path(path)
+    lab = str(p) if label is None else (label if label == str(p) else f"{label}: {p}")
+    return _decode(raw, lab)
+
+
+def read_json(path: str | os.PathLike, what: str = "file", cap: int = MAX_INPUT_BYTES) -> Any:
+    """Read, decode and parse one JSON input file; one-line SectionError (starting with the path) on any fault."""
+    p = Path(path)
+    label = str(p)
+    raw = read_bytes(p, f"{what} (a JSON file)", cap)
     text = _decode(raw, label)
     try:
         data = json.loads(text, object_pairs_hook=_pairs, parse_int=_int, parse_constant=_constant)

@@ -728,3 +728,17 @@ def test_library_warnings_reach_the_terminal_as_one_line(tmp_path, capsys, monke
         assert main(["solve", str(sec), "--out", str(tmp_path / "out")]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert err == ["seepfe: warning: invalid value encountered in divide (RuntimeWarning)", "seepfe: error: stop here"]
+
+
+@pytest.mark.skipif(not Path("/dev/zero").exists(), reason="no /dev/zero")
+def test_build_inputs_are_read_with_a_cap_too(tmp_path, capsys):
+    assert main(["build", "/dev/zero", "--out", str(tmp_path / "s.json")]) == 2
+    _one_line_error(capsys, "larger than")
+    b = _write(tmp_path / "b.json", {
+        "ground": "/dev/zero", "borings": [{"name": "B1", "station": 0, "bottoms": {"sand": -10}}],
+        "strata": [{"name": "sand", "material": "sand"}], "materials": {"fill": {"k": 1e-7}, "sand": {"k": 1e-4}},
+        "embankment": {"material": "fill", "crest_elevation": 4, "crest_width": 4, "riverside_slope": 2,
+                       "landside_slope": 2}, "bottom": -10, "water": {"river": 3, "landside": None}})
+    assert main(["build", str(b), "--out", str(tmp_path / "s.json")]) == 2
+    _one_line_error(capsys, "larger than")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["b.json"]
