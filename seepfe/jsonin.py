@@ -18,7 +18,8 @@ from typing import Any
 
 from .errors import SectionError
 
-__all__ = ["read_json", "read_text", "read_bytes", "check_tree", "MAX_INPUT_BYTES", "MAX_DEPTH", "MAX_INT_DIGITS", "json_type"]
+__all__ = ["read_json", "read_text", "read_bytes", "check_tree", "MAX_INPUT_BYTES", "MAX_DEPTH", "MAX_INT_DIGITS",
+           "json_type"]
 
 #: largest input file read, bytes (a section with a 100,000-vertex polygon is about 4 MB)
 MAX_INPUT_BYTES = 64 * 1024 * 1024
@@ -98,7 +99,8 @@ def _decode(raw: bytes, label: str) -> str:
                            "save the file as UTF-8") from None
 
 
-def read_bytes(path: str | os.PathLike, what: str = "file", cap: int = MAX_INPUT_BYTES, label: str | None = None) -> bytes:
+def read_bytes(path: str | os.PathLike, what: str = "file", cap: int = MAX_INPUT_BYTES,
+               label: str | None = None) -> bytes:
     """The bytes of one input file, read with a size cap (``/dev/zero`` or a wrong file never fills the
     memory); one-line SectionError starting with ``label`` (default: the path) on any fault."""
     p = Path(path)
@@ -116,7 +118,8 @@ def read_bytes(path: str | os.PathLike, what: str = "file", cap: int = MAX_INPUT
     return raw
 
 
-def read_text(path: str | os.PathLike, what: str = "file", cap: int = MAX_INPUT_BYTES, label: str | None = None) -> str:
+def read_text(path: str | os.PathLike, what: str = "file", cap: int = MAX_INPUT_BYTES,
+              label: str | None = None) -> str:
     """The text of one UTF-8 input file (a UTF-16 file gets a hint), read with a size cap."""
     raw = read_bytes(path, what, cap, label)
     p = Path(path)

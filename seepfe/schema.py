@@ -20,7 +20,8 @@ from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validat
 from .units import K_RANGE, Dim
 
 __all__ = ["Name", "Text", "ProjectSpec", "MaterialSpec", "ZoneSpec", "BoundarySpec", "BarrierSpec", "RefineSpec",
-           "MeshSpec", "WaterSpec", "SectionSpec", "K_RANGE", "Length", "PositiveLength", "Point", "Conductivity", "Flux", "UnitWeight"]
+           "MeshSpec", "WaterSpec", "SectionSpec", "K_RANGE", "Length", "PositiveLength", "Point", "Conductivity",
+           "Flux", "UnitWeight"]
 
 
 def _finite(v: float) -> float:

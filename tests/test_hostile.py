@@ -186,7 +186,8 @@ def test_out_is_checked_before_any_solve(tmp_path, capsys, monkeypatch, cmd, whe
     assert main(_cmd(cmd, sec, out)) == 2
     _one_line_error(capsys)
     assert blocker.read_text() == "a file" and (foreign / "a.txt").read_text() == "a"
-    assert sorted(p.name for p in (tmp_path / "in").iterdir()) == ["levee.json"] + (["sw.json"] if cmd == "sweep" else [])
+    left = sorted(p.name for p in (tmp_path / "in").iterdir())
+    assert left == ["levee.json"] + (["sw.json"] if cmd == "sweep" else [])
 
 
 @pytest.mark.parametrize("mask, mode", [(0o022, 0o755), (0o027, 0o750), (0o002, 0o775)])
@@ -700,7 +701,7 @@ def test_a_polygon_with_20000_vertices_loads_through_the_spatial_index():
          "zones": [{"name": "g", "material": "s", "polygon": [[20.0, -5.0], [-20.0, -5.0]] + top}],
          "boundaries": [{"name": "left", "polyline": [[-20, -5], top[0]], "head": 1.0},
                         {"name": "right", "polyline": [[20, -5], top[-1]], "head": 0.0}]}
-    g = seepfe.load_section(d).graph      # quadratic before: 17 s here; now well under a second (scripts/bench_geometry.py)
+    g = seepfe.load_section(d).graph      # quadratic before: 17 s here, now under a second (scripts/bench_geometry.py)
     assert len(g.segments) == 20002 and g.outline.all()
     assert (g.boundary >= 0).sum() == 2
 

@@ -292,7 +292,8 @@ def material_handles(section, colours: dict) -> list:
     out = []
     for name in dict.fromkeys(z.material for z in section.spec.zones):
         mat = section.spec.materials[name]
-        out.append(Patch(facecolor=colours[name], edgecolor=INK, linewidth=0.5, label=f"{text(name)}: {fmt_k(mat, section.units)}"))
+        out.append(Patch(facecolor=colours[name], edgecolor=INK, linewidth=0.5,
+                         label=f"{text(name)}: {fmt_k(mat, section.units)}"))
     return out
 
 

@@ -214,7 +214,8 @@ class SweepSpec(BaseModel):
         if self.vary:
             counts = [_count(v) for v in self.vary.values()]
             n = math.prod(counts) if self.mode == "grid" else sum(counts)
-            parts.append(f"table: {' x '.join(map(str, counts)) if self.mode == 'grid' else ' + '.join(map(str, counts))}")
+            joined = (" x " if self.mode == "grid" else " + ").join(map(str, counts))
+            parts.append(f"table: {joined}")
             total += n
         if self.fragility is not None:
             n_st = _count(self.fragility.stages)
