@@ -138,10 +138,14 @@ def check_replaceable(out: str | os.PathLike, what: str = "--out") -> None:
         return
     doc = _read_manifest(out)
     if doc is None:
-        legacy = (out / MANIFEST).is_file() or (out / "summary.json").is_file()
-        first = one_line((others + files + dirs)[0])
-        why = ("was written by an earlier seepfe that kept no list of its files" if legacy
-               else f"was not written by seepfe (it holds '{first}')")
+        try:
+            legacy = (out / MANIFEST).is_file() and (out / MANIFEST).stat().st_size < 100 and \
+                (out / MANIFEST).read_text(errors="replace").startswith("written by seepfe")
+        except OSError:
+            legacy = False
+        first = one_line(next(iter([r for r in others + files + dirs if r != MANIFEST]), MANIFEST))
+        why = ("was written by an earlier seepfe that kept no list of its files (delete it yourself if it holds "
+               "nothing of yours)" if legacy else f"was not written by seepfe (it holds '{first}')")
         raise SeepfeError(f"{out}: {what} exists and {why}; nothing was deleted: move your files out or "
                           f"choose another {what}")
     listed, folders = doc["files"], set(doc.get("folders", []))
