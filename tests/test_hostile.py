@@ -225,8 +225,8 @@ _SIGTERM_MID_WRITE = """
 import os, signal, sys, time
 import seepfe.output as o
 real = o.write_analysis
-def slow(a, folder):
-    names = real(a, folder)
+def slow(*a, **k):
+    names = real(*a, **k)
     os.kill(os.getpid(), signal.SIGTERM)
     time.sleep(30)
     return names

@@ -26,7 +26,7 @@ from typing import Any, Optional
 
 from ..errors import SeepfeError
 
-__all__ = ["CaseCache", "record_fault", "STATUSES"]
+__all__ = ["CaseCache", "record_fault", "basic_fault", "STATUSES"]
 
 #: statuses a cached record may carry (failed cases are never cached)
 STATUSES = ("ok", "not converged")
@@ -48,18 +48,25 @@ def _non_finite(v: Any, where: str) -> Optional[str]:
     return None
 
 
-def record_fault(record: Any, payload: Optional[dict] = None) -> Optional[str]:
-    """Why ``record`` is not a valid cached case record (None when it is); see the module docstring."""
+def record_fault(record: Any, payload: Optional[dict] = None, extra: Optional[dict] = None) -> Optional[str]:
+    """Why ``record`` is not a valid cached case record (None when it is); see the module docstring.
+
+    ``extra`` ({key: type}) admits keys a worker function adds to the case record (each required and of
+    that type), e.g. a reach station's report."""
     from pydantic import ValidationError
 
     from ..records import CaseRecord
     if not isinstance(record, dict):
         return "record: not an object"
-    missing = [k for k in CaseRecord.model_fields if k not in record]
+    extra = extra or {}
+    missing = [k for k in list(CaseRecord.model_fields) + list(extra) if k not in record]
     if missing:
         return f"record: missing '{missing[0]}'"
+    for k, t in extra.items():
+        if isinstance(record[k], bool) or not isinstance(record[k], t):
+            return f"record.{k}: not {getattr(t, '__name__', t)}"
     try:
-        CaseRecord.model_validate(record, strict=True)
+        CaseRecord.model_validate({k: v for k, v in record.items() if k not in extra}, strict=True)
     except ValidationError as e:
         err = e.errors(include_url=False)[0]
         return f"record.{'.'.join(str(x) for x in err['loc'])}: {err['msg']}"
@@ -79,6 +86,16 @@ def record_fault(record: Any, payload: Optional[dict] = None) -> Optional[str]:
         if names is not None and not set(record["exit"]) <= set(names):
             return "record.exit: not the exit boundaries of the case"
     return None
+
+
+def basic_fault(record: Any, payload: Optional[dict] = None) -> Optional[str]:
+    """The least a cached record of any worker function must be: an object with a status a cached case can
+    have and only finite numbers (see :func:`record_fault` for the sweep's case records)."""
+    if not isinstance(record, dict):
+        return "record: not an object"
+    if record.get("status") not in STATUSES:
+        return f"record.status: not one of {', '.join(STATUSES)}"
+    return _non_finite(record, "record")
 
 
 def _no_constants(name: str):
@@ -107,7 +124,7 @@ class CaseCache:
             raise SeepfeError(f"{p}: something other than a file is where this case's cache file goes; "
                               "move it away and run again")
 
-    def get(self, h: str, payload: Optional[dict] = None) -> dict | None:
+    def get(self, h: str, payload: Optional[dict] = None, validate=None) -> dict | None:
         """The record of case ``h``, or None if absent, unreadable or not a valid record (then it is
         solved again)."""
         p = self._path(h)
@@ -121,7 +138,7 @@ class CaseCache:
         if not isinstance(doc, dict) or doc.get("hash") != h or not isinstance(doc.get("record"), dict):
             self.refused[h] = "not a case file of this hash"
             return None
-        why = record_fault(doc["record"], payload)
+        why = (validate or record_fault)(doc["record"], payload)
         if why:
             self.refused[h] = why
             return None

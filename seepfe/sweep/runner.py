@@ -34,7 +34,7 @@ from concurrent.futures.process import BrokenProcessPool
 from typing import Callable, Iterable, Optional
 
 from ..errors import SeepfeError
-from .cache import CaseCache, record_fault
+from .cache import CaseCache, basic_fault, record_fault
 from .case import _THREAD_VARS, case_hash, run_case
 
 __all__ = ["Runner", "usable_cores"]
@@ -128,14 +128,20 @@ class Runner:
     workers : number of local processes (default: all usable cores); 1 runs in this process.
     scheduler : Dask scheduler address or a ``distributed.Client`` (then ``workers`` is ignored).
     max_solves : stop after this many new solves (the rest stay for the next run).
+    func : what a worker runs on a payload (default :func:`seepfe.sweep.case.run_case`).
+    validate : ``validate(record, payload)`` -> None, or why a record may not be cached or reused (default:
+        :func:`seepfe.sweep.cache.record_fault` for ``run_case``, :func:`seepfe.sweep.cache.basic_fault`
+        for another ``func``).
 
     After each :meth:`run`, ``self.solved`` and ``self.cached`` count what happened (also totals in
     ``self.total_solved``).
     """
 
     def __init__(self, cache_dir=None, workers: Optional[int] = None, scheduler=None,
-                 max_solves: Optional[int] = None, func: Callable[[dict], dict] = run_case):
+                 max_solves: Optional[int] = None, func: Callable[[dict], dict] = run_case,
+                 validate: Optional[Callable[[dict, dict], Optional[str]]] = None):
         self.func = func            # what a worker runs on a payload (a module-level function: it is pickled)
+        self.validate = validate or (record_fault if func is run_case else basic_fault)
         self.cache = CaseCache(cache_dir) if cache_dir is not None else None
         self.workers = workers or usable_cores()
         self.scheduler = scheduler
@@ -262,7 +268,7 @@ class Runner:
             if h in seen:
                 continue
             seen.add(h)
-            rec = self.cache.get(h, p) if self.cache is not None else None
+            rec = self.cache.get(h, p, self.validate) if self.cache is not None else None
             if rec is not None:
                 records[h] = rec
             else:
@@ -282,7 +288,7 @@ class Runner:
             self.solved += 1
             self.total_solved += 1
             # failed cases are not kept (solved again next time), nor anything not shaped like a record
-            if self.cache is not None and record_fault(rec, payload_of[h]) is None:
+            if self.cache is not None and self.validate(rec, payload_of[h]) is None:
                 self.cache.put(h, rec)
             if progress:
                 progress(self.cached + self.solved, total, self.cached)
