@@ -39,8 +39,8 @@ from .csvfile import csv_cell, write_csv, write_table
 from .errors import SeepfeError
 from .text import one_line
 
-__all__ = ["atomic_dir", "check_out", "check_replaceable", "write_analysis", "write_result", "write_csv",
-           "write_table", "csv_cell", "write_json", "safe_name", "MANIFEST"]
+__all__ = ["atomic_dir", "add_to_manifest", "check_out", "check_replaceable", "write_analysis", "write_result",
+           "write_csv", "write_table", "csv_cell", "write_json", "safe_name", "MANIFEST"]
 
 #: manifest of a folder seepfe wrote (JSON: the files and their sha256)
 MANIFEST = ".seepfe"
@@ -90,6 +90,20 @@ def _write_manifest(folder: Path) -> None:
            "note": "the files seepfe wrote in this folder; seepfe replaces the folder only while it holds "
                    "exactly these (unchanged) and nothing else",
            "folders": dirs, "files": listed}
+    (folder / MANIFEST).write_text(json.dumps(doc, indent=1) + "\n", encoding="utf-8")
+
+
+def add_to_manifest(folder: str | os.PathLike, *names: str) -> None:
+    """List files seepfe has just added to a finished folder (``names`` relative to it) in its manifest, so
+    the next run may replace the folder with them (a report written beside a sweep's results, say)."""
+    folder = Path(folder)
+    doc = _read_manifest(folder)
+    if doc is None:
+        return
+    for n in names:
+        p = folder / n
+        if p.is_file() and not p.is_symlink():
+            doc["files"][Path(n).as_posix()] = {"bytes": p.stat().st_size, "sha256": _sha256(p)}
     (folder / MANIFEST).write_text(json.dumps(doc, indent=1) + "\n", encoding="utf-8")
 
 

@@ -102,6 +102,8 @@ def write_stage_study(section, sweep, out, *, stage: str | None = None, workers=
     if pdf:
         from .pdf import write_pdf
         write_pdf(res_dir / "report.html", res_dir / "report.pdf")
+    from ..output import add_to_manifest
+    add_to_manifest(res_dir, "report.html", *(["report.pdf"] if pdf else []))   # replaceable with results/
     first = _first_failure_text(target, col)
     fails = [r for r in rows if r["verdict"] == "fail"]
     summary = (f"stage study: {len(rows)} stages of {stage}, {len(fails)} fail; {first}")
