@@ -26,7 +26,6 @@ from shapely.geometry import Point as ShapelyPoint
 
 from .conductivity import conductivity_tensor
 from .errors import SectionError
-from .geometry import fmt_xy
 from .jsonin import json_type
 from .schema import K_RANGE, BoundarySpec, MaterialSpec, SectionSpec
 from .units import SI, Units
@@ -400,6 +399,7 @@ MAX_CHECK_POINTS = 1_000_000
 
 def _check_plausible(spec: SectionSpec, outline: Polygon, extent: float, tol: float) -> None:
     """Values that are valid numbers but nonsense for a section: one-line SectionErrors naming the item."""
+    from .geometry import fmt_xy
     gw = spec.water.unit_weight
     if not WATER_UNIT_WEIGHT[0] <= gw <= WATER_UNIT_WEIGHT[1]:
         raise SectionError(f"water.unit_weight: {gw:g} kN/m3 is not water's ({WATER_UNIT_WEIGHT[0]:g} to "
