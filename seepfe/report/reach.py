@@ -87,13 +87,9 @@ def station_value(s) -> float:
 
 
 def load_reach(path) -> tuple[ReachSpec, Path, str]:
+    from ..jsonin import read_json
     p = Path(path)
-    try:
-        data = json.loads(p.read_text(encoding="utf-8-sig"))
-    except OSError as x:
-        raise SeepfeError(f"{p}: cannot read the reach file ({x.strerror})") from None
-    except ValueError as x:
-        raise SeepfeError(f"{p}: not JSON ({x})") from None
+    data = read_json(p, "reach file")                  # size cap, UTF-8, duplicate keys, nesting checked
     try:
         spec = ReachSpec.model_validate(data)
     except ValidationError as x:

@@ -41,13 +41,9 @@ class StageStudy:
 def _load(sweep) -> tuple[dict, str]:
     if isinstance(sweep, dict):
         return json.loads(json.dumps(sweep)), "<dict>"
+    from ..jsonin import read_json
     p = Path(sweep)
-    try:
-        return json.loads(p.read_text(encoding="utf-8-sig")), str(p)
-    except OSError as e_:
-        raise SeepfeError(f"{p}: cannot read the sweep file ({e_.strerror})") from None
-    except ValueError as e_:
-        raise SeepfeError(f"{p}: not JSON ({e_})") from None
+    return read_json(p, "sweep file"), str(p)      # size cap, UTF-8, duplicate keys, nesting checked
 
 
 def _stage_values(spec_vary, key, data, label):
