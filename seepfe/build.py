@@ -49,15 +49,9 @@ ROUND = 6          # decimals written (the file's length unit); far finer than a
 # --------------------------------------------------------------------------- reading
 def read_build(path) -> tuple[dict, Path, str]:
     """(build dict, folder that relative paths start from, label) of a build file."""
+    from .jsonin import read_json
     p = Path(path)
-    try:
-        data = json.loads(p.read_text(encoding="utf-8-sig"))
-    except OSError as e:
-        raise SectionError(f"{p}: cannot read the file ({e.strerror or e})") from None
-    except UnicodeDecodeError:
-        raise SectionError(f"{p}: not UTF-8 text; save the file as UTF-8") from None
-    except json.JSONDecodeError as e:
-        raise SectionError(f"{p}: not valid JSON at line {e.lineno}, column {e.colno}: {e.msg}") from None
+    data = read_json(p, "build file")          # size cap, UTF-8, duplicate keys and nesting checked
     if not isinstance(data, dict):
         raise SectionError(f"{p}: the top level must be a JSON object {{...}}")
     return data, p.parent, str(p)
@@ -65,12 +59,8 @@ def read_build(path) -> tuple[dict, Path, str]:
 
 def _rows(path: Path, label: str) -> tuple[list[str] | None, list[tuple[int, list[str]]]]:
     """(header or None, [(line number, cells)]) of a CSV file; '#' starts a comment line."""
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except OSError as e:
-        raise SectionError(f"{label}: cannot read {path} ({e.strerror or e})") from None
-    except UnicodeDecodeError:
-        raise SectionError(f"{label}: {path}: not UTF-8 text") from None
+    from .jsonin import read_text
+    text = read_text(path, "CSV file", label=label)        # size cap, UTF-8 (with a UTF-16 hint)
     lines = [(i + 1, ln) for i, ln in enumerate(text.splitlines()) if ln.strip() and not ln.lstrip().startswith("#")]
     rows = [(n, [c.strip() for c in cells]) for (n, _), cells in zip(lines, csv.reader(ln for _, ln in lines))]
     if not rows:

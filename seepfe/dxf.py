@@ -106,7 +106,11 @@ def _entities(path: Path, label: str) -> tuple[list[tuple[str, bool, list]], int
     """[(layer, closed, [[x, y], ...])], $INSUNITS, [skipped entity kinds by layer]."""
     ezdxf = _ezdxf()
     if not path.is_file():
-        raise SectionError(f"{label}: cannot read {path} (no such file)")
+        raise SectionError(f"{label}: cannot read {path} ({'not a regular file' if path.exists() else 'no such file'})")
+    from .jsonin import MAX_INPUT_BYTES
+    if path.stat().st_size > 4 * MAX_INPUT_BYTES:
+        raise SectionError(f"{label}: {path}: larger than {4 * MAX_INPUT_BYTES // (1024 * 1024)} MiB; not a section "
+                           "drawing")
     try:
         doc = ezdxf.readfile(str(path))
     except Exception as e:        # ezdxf raises several kinds on a damaged or foreign file

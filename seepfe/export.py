@@ -84,10 +84,9 @@ _VALUE = {"phreatic_line": ("pressure_head_m", "length"),
 
 
 def _write_csv(path: Path, columns: dict) -> None:
-    """Named columns (names carry units) as CSV (output.py calls this module, so it writes its own)."""
-    names = list(columns)
-    data = np.column_stack([np.asarray(columns[n], float) for n in names]) if names else np.empty((0, 0))
-    np.savetxt(path, data.reshape(-1, len(names)), delimiter=",", header=",".join(names), comments="", fmt="%.10g")
+    """Named columns (names carry units) as CSV, through seepfe's one CSV writer (seepfe.csvfile)."""
+    from .csvfile import write_csv
+    write_csv(path, columns)
 
 
 def _csv(path: Path, items: list, value_col: str, dim: str, units) -> None:
@@ -144,11 +143,12 @@ def write_lines(analysis, folder, units=None, dxf: bool = False) -> list[str]:
 def input_bytes(section) -> tuple[str, bytes]:
     """The section file as read: (file name, bytes). Byte for byte when the file still has the content the
     run was made with; otherwise (changed since, or given as a dict) the data the run used, as JSON."""
+    from .jsonin import MAX_INPUT_BYTES
     from .section import _hash
     src = Path(section.source)
     name = src.name if section.source not in ("<dict>", "") and src.suffix else "section.json"
     try:
-        if src.is_file():
+        if src.is_file() and src.stat().st_size <= MAX_INPUT_BYTES:
             raw = src.read_bytes()
             if _hash(json.loads(raw.decode("utf-8-sig"))) == section.input_hash:
                 return name, raw
@@ -174,7 +174,8 @@ def copy_inputs(folder, section, more: dict | None = None) -> list[str]:
         if isinstance(v, dict):
             data = (json.dumps(v, indent=2, ensure_ascii=False) + "\n").encode("utf-8")
         else:
-            data = Path(v).read_bytes()
+            from .jsonin import read_bytes
+            data = read_bytes(v, "copy of an input file")
         (folder / "input" / n).write_bytes(data)
         written.append(f"input/{n}")
     digest = {w: hashlib.sha256((folder / w).read_bytes()).hexdigest() for w in written}

@@ -33,6 +33,8 @@ def clean_polygon(label: str, pts, tol: float) -> np.ndarray:
     Raises SectionError if it has fewer than 3 distinct vertices, no area, or crosses itself.
     """
     p = np.asarray(pts, dtype=float)
+    if p.ndim != 2 or len(p) < 3:
+        raise SectionError(f"{label}: polygon needs at least 3 distinct points, got {len(p)}")
     # drop consecutive repeats, and the closing repeat
     keep = np.ones(len(p), bool)
     keep[1:] = np.linalg.norm(np.diff(p, axis=0), axis=1) > tol
@@ -131,14 +133,39 @@ def _dist_to_segment(p: np.ndarray, a: np.ndarray, b: np.ndarray):
 
 
 def _on_polyline(p: np.ndarray, line: np.ndarray, tol: float) -> np.ndarray:
-    """Mask of points p (n, 2) within tol of the polyline."""
+    """Mask of points p (n, 2) within tol of the polyline (an R-tree of its segments: n log m, not n m)."""
+    line = np.asarray(line, float)
+    keep = np.linalg.norm(np.diff(line, axis=0), axis=1) > tol
+    if not keep.any() or not len(p):
+        return np.zeros(len(p), bool)
+    segs = shapely.linestrings(np.stack([line[:-1][keep], line[1:][keep]], axis=1))
+    idx = shapely.STRtree(segs).query(shapely.points(p), predicate="dwithin", distance=tol)
     hit = np.zeros(len(p), bool)
-    for a, b in zip(line[:-1], line[1:]):
-        if np.linalg.norm(b - a) <= tol:
-            continue
-        dist, _ = _dist_to_segment(p, a, b)
-        hit |= dist <= tol
+    hit[idx[0]] = True
     return hit
+
+
+def _near_segments(tree: cKDTree, points: np.ndarray, A: np.ndarray, B: np.ndarray, tol: float):
+    """Every (segment, point) pair with the point within tol of segment AB, and t along it.
+
+    Candidates come from a KD-tree query of the ball around each segment (mid-point, half length + tol),
+    so the cost grows with the pairs found, not with segments x points."""
+    if not len(A):
+        z = np.zeros(0, np.int64)
+        return z, z, np.zeros(0), np.zeros(0)
+    mid, rad = 0.5 * (A + B), 0.5 * np.linalg.norm(B - A, axis=1) + tol
+    cand = tree.query_ball_point(mid, rad)
+    n = np.fromiter((len(c) for c in cand), np.int64, len(cand))
+    seg = np.repeat(np.arange(len(A)), n)
+    pts = np.fromiter((i for c in cand for i in c), np.int64, int(n.sum()))
+    d = B[seg] - A[seg]
+    L2 = np.einsum("ij,ij->i", d, d)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        t = np.where(L2 > 0, np.einsum("ij,ij->i", points[pts] - A[seg], d) / np.where(L2 > 0, L2, 1.0), 0.0)
+    tc = np.clip(t, 0.0, 1.0)
+    dist = np.linalg.norm(points[pts] - (A[seg] + tc[:, None] * d), axis=1)
+    ok = dist <= tol
+    return seg[ok], pts[ok], t[ok], np.sqrt(L2[seg[ok]])
 
 
 def check_barriers(names: list[str], lines: list, outline: Polygon, tol: float) -> list[np.ndarray]:
@@ -158,20 +185,7 @@ def check_barriers(names: list[str], lines: list, outline: Polygon, tol: float) 
             raise SectionError(f"barrier '{name}': polyline has zero length")
         line = LineString(p)
         if not line.is_simple:
-            where = None
-            for i in range(len(p) - 1):
-                si = LineString(p[i:i + 2])
-                for j in range(i + 1, len(p) - 1):
-                    sj = LineString(p[j:j + 2])
-                    inter = si.intersection(sj)
-                    if inter.is_empty:
-                        continue
-                    if j == i + 1 and inter.geom_type == "Point":
-                        continue  # consecutive segments share their vertex
-                    where = inter.representative_point().coords[0]
-                    break
-                if where is not None:
-                    break
+            where = _self_crossing(p)
             raise SectionError(f"barrier '{name}': polyline crosses itself"
                                + (f" near {fmt_xy(where)}" if where is not None else ""))
         off = line.difference(outline.buffer(tol * 4))
@@ -196,6 +210,20 @@ def check_barriers(names: list[str], lines: list, outline: Polygon, tol: float) 
                 raise SectionError(f"barriers '{names[i]}' and '{names[j]}' cross or touch near {fmt_xy(c)}; "
                                    f"join them into one polyline or keep them apart")
     return out
+
+
+def _self_crossing(p: np.ndarray):
+    """A point where a polyline crosses or runs back over itself (an R-tree of its segments), or None."""
+    segs = shapely.linestrings(np.stack([p[:-1], p[1:]], axis=1))
+    i, j = shapely.STRtree(segs).query(segs, predicate="intersects")
+    far = j > i + 1                               # consecutive segments share their vertex
+    for a, b in zip(i[far].tolist(), j[far].tolist()):
+        return shapely.intersection(segs[a], segs[b]).representative_point().coords[0]
+    for a in i[j == i + 1].tolist():              # ... unless they run back over each other
+        inter = shapely.intersection(segs[a], segs[a + 1])
+        if inter.geom_type != "Point" and not inter.is_empty:
+            return inter.representative_point().coords[0]
+    return None
 
 
 def _crossings(polys: list[np.ndarray], line: np.ndarray) -> np.ndarray:
@@ -244,38 +272,41 @@ def build_graph(zone_names: list[str], polys: list[np.ndarray], outline: Polygon
             raise SectionError(f"boundary '{name}': polyline leaves the outline of the section near "
                                f"{fmt_xy(c)}")
 
-    # insert points lying on each zone edge
-    key_to_seg: dict[tuple[int, int], int] = {}
-    segs: list[tuple[int, int]] = []
-    uses: list[int] = []
-    loops = []
-    off = 0
-    for poly in polys:
-        ids = inv[off:off + len(poly)]
-        off += len(poly)
-        ring: list[int] = []
-        for k in range(len(ids)):
-            a, b = ids[k], ids[(k + 1) % len(ids)]
-            ring.append(int(a))
-            dist, t = _dist_to_segment(points, points[a], points[b])
-            L = np.linalg.norm(points[b] - points[a])
-            on = (dist <= tol) & (t * L > tol) & ((1 - t) * L > tol)
-            on[[a, b]] = False
-            ins = np.flatnonzero(on)
-            ring.extend(int(i) for i in ins[np.argsort(t[ins])])
-        loop = []
-        for k in range(len(ring)):
-            a, b = ring[k], ring[(k + 1) % len(ring)]
-            key = (a, b) if a < b else (b, a)
-            s = key_to_seg.get(key)
-            if s is None:
-                s = len(segs)
-                key_to_seg[key] = s
-                segs.append(key)
-                uses.append(0)
-            uses[s] += 1
-            loop.append(s if a == key[0] else -(s + 1))
-        loops.append(tuple(loop))
+    # insert points lying on each zone edge (KD-tree candidates; no loop over edges or points)
+    tree = cKDTree(points)
+    sizes = [len(p) for p in polys]
+    zone_of = np.repeat(np.arange(len(polys)), sizes)
+    start = np.repeat(np.cumsum([0] + sizes[:-1]), sizes)
+    ea = inv[:len(zone_of)]
+    local = np.arange(len(zone_of)) - start
+    eb = ea[start + (local + 1) % np.repeat(sizes, sizes)]
+    A, B = points[ea], points[eb]
+    seg, pts, t, L = _near_segments(tree, points, A, B, tol)
+    ins = (t * L > tol) & ((1 - t) * L > tol) & (pts != ea[seg]) & (pts != eb[seg])
+    seg, pts, t = seg[ins], pts[ins], t[ins]
+    # the ring of every zone: each edge's start vertex (t = -1), then the points on it in order of t
+    e_all = np.concatenate([np.arange(len(ea)), seg])
+    t_all = np.concatenate([np.full(len(ea), -1.0), t])
+    p_all = np.concatenate([ea, pts])
+    o = np.lexsort((t_all, e_all))
+    ring, ring_zone = p_all[o], zone_of[e_all[o]]
+    nxt = np.empty_like(ring)
+    ends = np.flatnonzero(np.diff(np.append(ring_zone, -1)) != 0)          # last entry of each zone
+    firsts = np.concatenate([[0], ends[:-1] + 1])
+    nxt[:-1] = ring[1:]
+    nxt[ends] = ring[firsts]
+    lo, hi = np.minimum(ring, nxt), np.maximum(ring, nxt)
+    keys = lo.astype(np.int64) * len(points) + hi
+    uk, first, inv_k, counts = np.unique(keys, return_index=True, return_inverse=True, return_counts=True)
+    order_new = np.argsort(first, kind="stable")                    # segments numbered by first use
+    rank = np.empty(len(uk), np.int64)
+    rank[order_new] = np.arange(len(uk))
+    sid = rank[inv_k]
+    segs = [(int(a), int(b)) for a, b in zip(lo[first[order_new]], hi[first[order_new]])]
+    key_to_seg: dict[tuple[int, int], int] = {k: i for i, k in enumerate(segs)}
+    uses = counts[order_new]
+    signed = np.where(ring == lo, sid, -(sid + 1))
+    loops = [tuple(int(v) for v in signed[a:b + 1]) for a, b in zip(firsts, ends)]
     segments = np.array(segs, dtype=np.int64)
     outline_mask = np.array(uses) == 1
 
@@ -303,10 +334,12 @@ def build_graph(zone_names: list[str], polys: list[np.ndarray], outline: Polygon
     new_segs: list[tuple[int, int]] = []
     new_bar: list[int] = []
     for bi, (name, bl) in enumerate(barriers):
-        for a, b in zip(bl[:-1], bl[1:]):
-            dist, t = _dist_to_segment(points, a, b)
-            on = np.flatnonzero(dist <= tol)
-            chain = on[np.argsort(t[on])]
+        bseg, bpts, bt, _ = _near_segments(tree, points, bl[:-1], bl[1:], tol)
+        o = np.lexsort((bt, bseg))
+        bseg, bpts = bseg[o], bpts[o]
+        cut = np.searchsorted(bseg, np.arange(len(bl)))
+        for k in range(len(bl) - 1):
+            chain = bpts[cut[k]:cut[k + 1]]
             for p, q in zip(chain[:-1].tolist(), chain[1:].tolist()):
                 key = (p, q) if p < q else (q, p)
                 s = key_to_seg.get(key)

@@ -14,8 +14,8 @@ keys ``title`` and ``description`` and the ``project`` block (the report's title
 
 API for sweeps and searches:
 
-* :func:`resolve` (data) -> a new dict with every expression replaced by its value and the
-  ``parameters`` key removed; the input is not changed.
+* :func:`resolve` (data) -> a new dict with every expression replaced by its value (a whole number
+  as an int, so it also fills a count) and the ``parameters`` key removed; the input is not changed.
 * :func:`with_values` (data, overrides) -> a deep copy of the *unresolved* data with overrides
   applied. A key is a declared parameter name (``"stage"``) or a dotted path into the file
   (``"materials.sand.kx"``, ``"boundaries.river.head"``, ``"zones.core.polygon.2.1"``): list items
@@ -33,6 +33,7 @@ import re
 from typing import Any
 
 from .errors import SectionError
+from .jsonin import json_type
 
 __all__ = ["resolve", "with_values", "parameter_values", "evaluate", "parse", "FUNCTIONS",
            "FREE_TEXT_KEYS"]
@@ -45,8 +46,8 @@ MAX_LENGTH = 400        # characters in one expression
 MAX_DEPTH = 50          # nesting of parentheses / unary operators
 
 _NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
-_NUMBER = re.compile(r"(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
-_PARAM_NAME = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
+_NUMBER = re.compile(r"(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
+_PARAM_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*\Z")
 
 
 class _ExprError(Exception):
@@ -64,11 +65,14 @@ def _tokens(text: str, base: int):
     while i < n:
         c = text[i]
         col = base + i
-        if c.isspace():
+        if c in " \t":
             i += 1
             continue
+        if not c.isascii() or not c.isprintable():
+            raise _ExprError(f"unexpected character {c!r} (expressions are plain ASCII: digits 0-9, names, "
+                             "+ - * / **, parentheses)", col)
         m = _NUMBER.match(text, i)
-        if m and (c.isdigit() or c == "."):
+        if m and (c in "0123456789" or c == "."):
             yield "num", float(m.group()), col
             i = m.end()
             continue
@@ -303,7 +307,8 @@ def _eval(tree, env: dict[str, float]) -> float:
 
 def _describe(text: str, e: _ExprError) -> str:
     where = f" at column {e.col}" if e.col is not None else ""
-    return f"expression {text!r}: {e.msg}{where}"
+    shown = text if len(text) <= 60 else text[:40] + "..." + text[-12:]
+    return f"expression {shown!r}: {e.msg}{where}"
 
 
 def evaluate(text: str, values: dict[str, float] | None = None) -> float:
@@ -352,7 +357,7 @@ def parameter_values(data: dict, label: str = "<dict>") -> dict[str, float]:
             raise SectionError(f"{label}: parameters: '{name}' is the name of a function; choose another name")
         if isinstance(v, bool) or not isinstance(v, (int, float, str)):
             raise SectionError(f"{label}: parameter '{name}': expected a number or an '=' expression, "
-                               f"got {type(v).__name__ if not isinstance(v, bool) else json_bool(v)}")
+                               f"got {json_type(v)}")
         if isinstance(v, str):
             if not _is_expr(v):
                 raise SectionError(f"{label}: parameter '{name}': expected a number or an '=' expression, "
@@ -363,33 +368,46 @@ def parameter_values(data: dict, label: str = "<dict>") -> dict[str, float]:
                 raise SectionError(f"{label}: parameter '{name}': {e}") from None
         elif not math.isfinite(float(v)):
             raise SectionError(f"{label}: parameter '{name}': must be a finite number, got {v}")
-    out: dict[str, float] = {k: float(v) for k, v in params.items() if k not in trees}
-    # dependency order (depth-first with cycle detection)
-    state: dict[str, int] = {}
-
-    def visit(name: str, chain: list[str]):
-        if name in out:
-            return
-        if state.get(name) == 1:
-            cyc = chain[chain.index(name):] + [name]
-            raise SectionError(f"{label}: parameters: circular definition {' -> '.join(cyc)}")
-        state[name] = 1
-        text = params[name]
-        for dep, col in _names(trees[name]):
-            if dep not in params:
-                raise SectionError(f"{label}: parameter '{name}': "
-                                   + _describe(text, _ExprError(
-                                       _unknown_param(dep, [k for k in params if k != name]), col)))
-            if dep in trees:
-                visit(dep, chain + [name])
-        try:
-            out[name] = _eval(trees[name], out)
-        except _ExprError as e:
-            raise SectionError(f"{label}: parameter '{name}': {_describe(text, e)}") from None
-        state[name] = 2
-
-    for name in trees:
-        visit(name, [])
+    out: dict[str, float] = {}
+    for k, v in params.items():
+        if k not in trees:
+            try:
+                out[k] = float(v)
+            except OverflowError:
+                raise SectionError(f"{label}: parameter '{k}': the number is too large") from None
+    # dependency order: an iterative depth-first walk (chains of any length), with cycle detection
+    state: dict[str, int] = {}            # 1 = on the current path, 2 = done
+    for root in trees:
+        if root in out:
+            continue
+        path: list[str] = [root]
+        deps = {root: iter(_names(trees[root]))}
+        state[root] = 1
+        while path:
+            name = path[-1]
+            step = next(deps[name], None)
+            if step is not None:
+                dep, col = step
+                if dep not in params:
+                    raise SectionError(f"{label}: parameter '{name}': "
+                                       + _describe(params[name], _ExprError(
+                                           _unknown_param(dep, [k for k in params if k != name]), col)))
+                if dep in out or dep not in trees:
+                    continue
+                if state.get(dep) == 1:
+                    cyc = path[path.index(dep):] + [dep]
+                    shown = cyc if len(cyc) <= 12 else cyc[:5] + ["..."] + cyc[-5:]
+                    raise SectionError(f"{label}: parameters: circular definition {' -> '.join(shown)}")
+                state[dep] = 1
+                path.append(dep)
+                deps[dep] = iter(_names(trees[dep]))
+                continue
+            try:
+                out[name] = _eval(trees[name], out)
+            except _ExprError as e:
+                raise SectionError(f"{label}: parameter '{name}': {_describe(params[name], e)}") from None
+            state[name] = 2
+            path.pop()
     return {k: out[k] for k in params}
 
 
@@ -408,7 +426,7 @@ def resolve(data: dict, label: str = "<dict>") -> dict:
     The input is not modified. Raises SectionError naming the item on any fault.
     """
     if not isinstance(data, dict):
-        raise SectionError(f"{label}: the top level must be an object {{...}}, got {type(data).__name__}")
+        raise SectionError(f"{label}: the top level must be an object {{...}}, got {json_type(data)}")
     values = parameter_values(data, label)
 
     def walk(node, path: list):
@@ -418,7 +436,9 @@ def resolve(data: dict, label: str = "<dict>") -> dict:
             return [walk(v, path + [_step_list(node, i)]) for i, v in enumerate(node)]
         if _is_expr(node):
             try:
-                return evaluate(node, values)
+                v = evaluate(node, values)
+                # a whole number stays whole, so '=n' also fills a count (mesh.max_elements, mesh.order)
+                return int(v) if v.is_integer() and abs(v) < 2.0 ** 53 else v
             except SectionError as e:
                 raise SectionError(f"{label}: {_item_label(path)}: {e}") from None
         return node
@@ -464,7 +484,7 @@ def with_values(data: dict, overrides: dict[str, Any], label: str = "<dict>") ->
     '=stage + 1'
     """
     if not isinstance(data, dict):
-        raise SectionError(f"{label}: with_values takes a section dict, got {type(data).__name__}")
+        raise SectionError(f"{label}: with_values takes a section dict, got {json_type(data)}")
     out = copy.deepcopy(data)
     params = out.get("parameters") if isinstance(out.get("parameters"), dict) else {}
     for key, value in overrides.items():

@@ -42,7 +42,7 @@ from shapely.ops import linemerge, unary_union
 
 from .conductivity import conductivity_tensor
 from .errors import SectionError
-from .schema import Conductivity, Length, PositiveLength, SectionSpec
+from .schema import K_RANGE, Conductivity, Length, Name, PositiveLength, SectionSpec
 from .units import Dim
 
 __all__ = ["apply", "flows", "RELIEF_WELL_LIMITS", "CutoffWall", "LandsideBerm", "RiversideBlanket",
@@ -72,7 +72,7 @@ Side = Optional[Literal["left", "right"]]
 
 class _Remedy(BaseModel):
     model_config = _CFG
-    name: Optional[Annotated[str, Field(min_length=1)]] = Field(
+    name: Optional[Name] = Field(
         None, description="name of the zone/boundary it makes (default: its type in words)")
 
 
@@ -84,14 +84,14 @@ class CutoffWall(_Remedy):
     top: Optional[Length] = Field(None, description="top elevation, m (default: top of the section at x)")
     bottom: Length = Field(description="bottom (tip) elevation, m")
     thickness: NonNegLength = Field(description="m; 0 = impervious sheet pile")
-    material: Optional[str] = Field(None, description="material of the wall (a key of 'materials')")
+    material: Optional[Name] = Field(None, description="material of the wall (a key of 'materials')")
     k: Optional[Conductivity] = Field(None, description="isotropic conductivity of the wall, m/s (instead of material)")
     mesh_size: Optional[PositiveLength] = Field(None, description="element size along the wall, m "
                                                                   "(default: thickness / 2, at most the mesh size)")
 
 
 class _OnGround(_Remedy):
-    embankment: Optional[str] = Field(None, description="zone whose toe is used (default: zone 'embankment')")
+    embankment: Optional[Name] = Field(None, description="zone whose toe is used (default: zone 'embankment')")
     toe_x: Optional[Length] = Field(None, description="x of the toe, m (instead of the embankment zone)")
     landside: Side = Field(None, description="direction of the landside (default: away from the boundary "
                                              "with the highest head)")
@@ -104,7 +104,7 @@ class LandsideBerm(_OnGround):
     length: PositiveLength = Field(description="horizontal length from the toe, m")
     thickness_toe: PositiveLength = Field(description="thickness at the toe, m")
     thickness_end: NonNegLength = Field(description="thickness at the landside end, m")
-    material: str
+    material: Name
 
 
 class RiversideBlanket(_OnGround):
@@ -113,7 +113,7 @@ class RiversideBlanket(_OnGround):
     type: Literal["riverside_blanket"]
     length: PositiveLength = Field(description="horizontal length from the riverside toe, m")
     thickness: PositiveLength = Field(description="m")
-    material: str
+    material: Name
 
 
 class ToeDrain(_OnGround):
@@ -401,6 +401,17 @@ def _material_for(r, data: dict, who: str, wall_k: Optional[float] = None) -> st
     return name
 
 
+def _refine_fits(spec, geo: _Geo, length: float, size: float, width: float, who: str, cause: str, fix: str):
+    """Refuse, naming the remedy's own value, a refinement along a remedy that alone would make more
+    triangles than mesh.max_elements (the estimate of seepfe.mesh.estimate_triangles for one polyline)."""
+    S = spec.mesh.size or geo.extent / 60.0
+    rs = min(size, S)
+    n = 2 * length * (width / rs ** 2 + 4.0 * (1.0 / rs - 1.0 / S)) / (math.sqrt(3.0) / 4.0)
+    if not n <= spec.mesh.max_elements:
+        raise SectionError(f"{who}: {cause} needs elements of {rs:.3g} m along {length:.4g} m, about {n:.3g} "
+                           f"triangles, more than mesh.max_elements = {spec.mesh.max_elements}; {fix}")
+
+
 def _cutoff(r: CutoffWall, spec, geo: _Geo, data: dict, who: str, refine: list) -> dict:
     ground = geo.ground(r.x, who)
     base = geo.base(r.x)
@@ -429,6 +440,13 @@ def _cutoff(r: CutoffWall, spec, geo: _Geo, data: dict, who: str, refine: list) 
         data.setdefault("barriers", []).append({"name": _unique(name, [b.get("name") for b in data.get("barriers", [])]),
                                                 "polyline": [[r.x, min(top, ground)], [r.x, bottom]]})
         return {"barrier": name, "top_m": min(top, ground), "bottom_m": bottom}
+    if r.thickness <= 100 * geo.tol:
+        raise SectionError(f"{who}: thickness {r.thickness:g} m is too thin to model as a zone of its own; give "
+                           "thickness 0 for an impervious sheet pile (a no-flow line)")
+    size = r.mesh_size or r.thickness / 2
+    _refine_fits(spec, geo, top - bottom, size, max(size, r.thickness), who,
+                 f"thickness {r.thickness:g} m" if r.mesh_size is None else f"mesh_size {size:g} m",
+                 "model a thin wall as a sheet pile (thickness 0) or give a larger 'mesh_size'")
     mat = _material_for(r, data, who, r.k)
     h = 0.5 * r.thickness
     rect = box(r.x - h, bottom, r.x + h, top).intersection(geo.outline)
@@ -436,7 +454,6 @@ def _cutoff(r: CutoffWall, spec, geo: _Geo, data: dict, who: str, refine: list) 
         raise SectionError(f"{who}: the wall covers no part of the section")
     geo.cut(rect, who)
     zones = geo.add(name, mat, rect, who)
-    size = r.mesh_size or r.thickness / 2
     refine.append({"polyline": [[r.x, top], [r.x, bottom]], "size": size, "width": max(size, r.thickness)})
     return {"zones": zones, "material": mat, "top_m": min(top, ground), "bottom_m": bottom,
             "full_depth": bool(bottom <= base + tol)}
@@ -533,6 +550,10 @@ def _wells(r: ReliefWells, spec, geo: _Geo, data: dict, who: str, refine: list):
     if y_out <= top + geo.tol * 10:
         raise SectionError(f"{who}: discharge elevation + well loss ({y_out:g} m) must be above the top of the "
                            f"screen ({top:g} m)")
+    reach = max(1000.0, 10 * geo.extent)
+    if y_out > geo.bounds[3] + reach:
+        raise SectionError(f"{who}: discharge elevation + well loss ({y_out:g} m) lies more than {reach:g} m above "
+                           f"the section (top at {geo.bounds[3]:g} m); give elevations and heads in m")
     # extra head of the well line over the 2D line sink, per unit of flow per m of levee (s/m)
     R = a / (2 * math.pi * k * W) * math.log(a / (2 * math.pi * rw))
     kmin = min(float(np.min(np.linalg.eigvalsh(_tensor(m)))) for m in spec.materials.values())
@@ -552,10 +573,19 @@ def _wells(r: ReliefWells, spec, geo: _Geo, data: dict, who: str, refine: list):
     m_screen = _unique(f"{name} screen", mats)
     mats[m_screen] = {"description": f"equipotential slot of {who} (model device)",
                       "k": float(100 * k * max(1.0, W / b)), **weight_at(0.5 * (top + bottom))}
+    ky_riser = L_r / (b * R)
+    if not K_RANGE[0] <= ky_riser <= K_RANGE[1]:
+        raise SectionError(f"{who}: the riser of the model well, from the screen top ({top:g} m) to discharge "
+                           f"elevation + well loss ({y_out:g} m), would need a vertical conductivity of "
+                           f"{ky_riser:.3g} m/s, outside the range of any material ({K_RANGE[0]:g} to {K_RANGE[1]:g} "
+                           "m/s); check 'discharge_elevation', 'well_loss', 'spacing' and 'radius'")
+    _refine_fits(spec, geo, y_out - bottom, b / 2, b, who,
+                 f"a riser up to {y_out:g} m (discharge elevation + well loss)",
+                 "check 'discharge_elevation' and 'well_loss'")
     m_riser = _unique(f"{name} riser", mats)
     mats[m_riser] = {"description": f"riser of {who}: vertical conductivity gives the line-of-wells "
                                     f"resistance (model device)",
-                     "kx": float(kmin * 1e-2), "ky": float(L_r / (b * R)), "angle": 0.0,
+                     "kx": float(kmin * 1e-2), "ky": float(ky_riser), "angle": 0.0,
                      **weight_at(0.5 * (top + min(y_out, ground)))}
     screen = box(x - b / 2, bottom, x + b / 2, top)
     riser = box(x - b / 2, top, x + b / 2, y_out)

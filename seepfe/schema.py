@@ -12,14 +12,16 @@ m2), angles degrees. A file written in other units (its ``"units"`` key) is conv
 from __future__ import annotations
 
 import math
+import unicodedata
 from typing import Annotated, Literal, Optional
 
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validator
 
 from .units import K_RANGE, Dim
 
-__all__ = ["ProjectSpec", "MaterialSpec", "ZoneSpec", "BoundarySpec", "BarrierSpec", "RefineSpec", "MeshSpec", "WaterSpec",
-           "SectionSpec", "K_RANGE", "Length", "PositiveLength", "Point", "Conductivity", "Flux", "UnitWeight"]
+__all__ = ["Name", "Text", "ProjectSpec", "MaterialSpec", "ZoneSpec", "BoundarySpec", "BarrierSpec", "RefineSpec",
+           "MeshSpec", "WaterSpec", "SectionSpec", "K_RANGE", "Length", "PositiveLength", "Point", "Conductivity",
+           "Flux", "UnitWeight"]
 
 
 def _finite(v: float) -> float:
@@ -34,6 +36,25 @@ def _positive(v: float) -> float:
         raise ValueError(f"must be > 0, got {v}")
     return v
 
+
+#: bidirectional embeddings, overrides and isolates: they reorder what a terminal shows
+_BIDI = frozenset("\u202a\u202b\u202c\u202d\u202e\u2066\u2067\u2068\u2069")
+
+
+def _plain(v: str) -> str:
+    """Names and titles are one line of plain text: no control characters (ESC, newline, tab, ...), line or
+    paragraph separators, bidirectional overrides or lone surrogates (they forge lines and colours on a terminal)."""
+    for ch in v:
+        if ch in _BIDI or unicodedata.category(ch) in ("Cc", "Cs", "Zl", "Zp"):
+            raise ValueError(f"holds the control character U+{ord(ch):04X}; names and titles are one line of "
+                             "plain text")
+    return v
+
+
+#: one line of plain text (titles, descriptions), at most 2000 characters
+Text = Annotated[str, Field(max_length=2000), AfterValidator(_plain)]
+#: a name (zones, materials, boundaries, barriers, remedies, sweep entries): plain text, 1 to 200 characters
+Name = Annotated[str, Field(min_length=1, max_length=200), AfterValidator(_plain)]
 
 Finite = Annotated[float, AfterValidator(_finite)]
 Positive = Annotated[float, AfterValidator(_positive), Field(json_schema_extra={"exclusiveMinimum": 0})]
@@ -76,7 +97,7 @@ class MaterialSpec(BaseModel):
     """A soil: isotropic ``k`` or principal ``kx``, ``ky`` with ``angle``; optional unit weight."""
 
     model_config = _CFG
-    description: Optional[str] = None
+    description: Optional[Text] = None
     k: Optional[Conductivity] = Field(None, description="isotropic saturated conductivity, m/s")
     kx: Optional[Conductivity] = Field(None, description="principal conductivity along angle, m/s")
     ky: Optional[Conductivity] = Field(None, description="principal conductivity across angle, m/s")
@@ -112,8 +133,8 @@ class ZoneSpec(BaseModel):
     """A simple polygon of one material. Zones tile the section."""
 
     model_config = _CFG
-    name: Annotated[str, Field(min_length=1)]
-    material: str
+    name: Name
+    material: Name
     polygon: list[Point] = Field(description="vertices [[x, y], ...] in m, either orientation")
     drain: bool = Field(False, description="a drain zone (toe, blanket or chimney drain) at atmospheric "
                                            "pressure: takes water out, never puts it in")
@@ -123,7 +144,7 @@ class BoundarySpec(BaseModel):
     """A condition on the outline edges that lie on ``polyline``. Exactly one kind is given."""
 
     model_config = _CFG
-    name: Annotated[str, Field(min_length=1)]
+    name: Name
     polyline: Annotated[list[Point], Field(min_length=2)]
     head: Optional[Length] = Field(None, description="prescribed total head, m")
     seepage_face: bool = Field(False, description="h = y where water leaves, no flow where it would enter")
@@ -162,7 +183,7 @@ class BarrierSpec(BaseModel):
     """
 
     model_config = _CFG
-    name: Annotated[str, Field(min_length=1)]
+    name: Name
     polyline: Annotated[list[Point], Field(min_length=2)] = Field(
         description="vertices [[x, y], ...] in m along the barrier")
 
@@ -246,12 +267,12 @@ class ChecksSpec(BaseModel):
     """Underseepage checks along exit surfaces. Every key is optional."""
 
     model_config = _CFG
-    boundaries: Optional[list[Annotated[str, Field(min_length=1)]]] = Field(
+    boundaries: Optional[list[Name]] = Field(
         None, description="names of the boundaries to check (default: every seepage face, and head "
                           "boundaries at the lowest prescribed head)")
     spacing: Optional[PositiveLength] = Field(None, description="extra check points every this many m along "
                                                           "each boundary (besides every mesh node)")
-    top_stratum: Optional[list[Annotated[str, Field(min_length=1)]]] = Field(
+    top_stratum: Optional[list[Name]] = Field(
         None, description="names of the zones that make up the landside top stratum (default: found where "
                           "the soil turns markedly more pervious, see 'contrast'); the base of the deepest "
                           "of them is the base of the top stratum")
@@ -272,7 +293,7 @@ class ChecksSpec(BaseModel):
     criteria: CriteriaSpec = Field(default_factory=CriteriaSpec)
 
 
-_Text = Optional[Annotated[str, Field(max_length=200)]]
+_Text = Optional[Annotated[str, Field(max_length=200), AfterValidator(_plain)]]
 
 
 class ProjectSpec(BaseModel):
@@ -301,9 +322,9 @@ class SectionSpec(BaseModel):
 
     model_config = ConfigDict(extra="forbid", strict=True, frozen=True,
                               json_schema_extra={"title": "seepfe section"})
-    title: str = ""
+    title: Text = ""
     project: Optional[ProjectSpec] = Field(None, description="title block of the report (docs/report.md)")
-    materials: Annotated[dict[str, MaterialSpec], Field(min_length=1)]
+    materials: Annotated[dict[Name, MaterialSpec], Field(min_length=1)]
     zones: Annotated[list[ZoneSpec], Field(min_length=1)]
     boundaries: list[BoundarySpec] = Field(default_factory=list)
     barriers: list[BarrierSpec] = Field(default_factory=list)

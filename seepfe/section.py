@@ -13,7 +13,6 @@ import hashlib
 import math
 import json
 import os
-import re
 import types
 import typing
 from dataclasses import dataclass, field
@@ -22,11 +21,13 @@ from typing import Any
 
 import numpy as np
 from pydantic import BaseModel, ValidationError
-from shapely.geometry import Polygon
+from shapely.geometry import LineString, Polygon
+from shapely.geometry import Point as ShapelyPoint
 
 from .conductivity import conductivity_tensor
 from .errors import SectionError
-from .schema import BoundarySpec, MaterialSpec, SectionSpec
+from .jsonin import json_type
+from .schema import K_RANGE, BoundarySpec, MaterialSpec, SectionSpec
 from .units import SI, Units
 
 __all__ = ["Section", "load_section", "conductivity_tensor"]
@@ -108,49 +109,20 @@ def _unknown(kind: str, name: str, known: list[str]) -> str:
 
 
 def _read(path_or_dict) -> tuple[dict, str]:
+    from .jsonin import check_tree, read_json
     if isinstance(path_or_dict, dict):
+        try:
+            check_tree(path_or_dict)
+        except SectionError as e:
+            raise SectionError(f"<dict>: {e}") from None
         return path_or_dict, "<dict>"
     if isinstance(path_or_dict, (str, os.PathLike)):
-        p = Path(path_or_dict)
-        label = str(p)
-        try:
-            raw = p.read_bytes()
-        except OSError as e:
-            raise SectionError(f"{label}: cannot read the file ({e.strerror or e})") from None
-        try:
-            text = raw.decode("utf-8-sig")
-        except UnicodeDecodeError as e:
-            line = raw[:e.start].count(b"\n") + 1
-            col = e.start - (raw.rfind(b"\n", 0, e.start) + 1) + 1
-            raise SectionError(f"{label}: not UTF-8 text at line {line}, column {col} (byte 0x{raw[e.start]:02x}); "
-                               "save the file as UTF-8") from None
-        try:
-            data = json.loads(text, parse_constant=_reject_constant)
-        except json.JSONDecodeError as e:
-            raise SectionError(f"{label}: not valid JSON at line {e.lineno}, column {e.colno}: {e.msg}") from None
-        except ValueError as e:
-            raise SectionError(f"{label}: {_constant_where(text)}{e}") from None
-        except RecursionError:
-            raise SectionError(f"{label}: not valid JSON: nested too deeply") from None
+        label = str(Path(path_or_dict))
+        data = read_json(path_or_dict, "section file")
         if not isinstance(data, dict):
-            raise SectionError(f"{label}: the top level must be a JSON object {{...}}, got {type(data).__name__}")
+            raise SectionError(f"{label}: the top level must be a JSON object {{...}}, got {json_type(data)}")
         return data, label
-    raise SectionError(f"load_section takes a path or a dict, got {type(path_or_dict).__name__}")
-
-
-def _reject_constant(name: str):
-    raise ValueError(f"'{name}' is not a number JSON allows; write a finite number")
-
-
-def _constant_where(text: str) -> str:
-    """'line L, column C: ' of the first NaN/Infinity literal outside strings (or '')."""
-    blank = re.sub(r'"(?:\\.|[^"\\])*"', lambda m: " " * len(m.group()), text)
-    m = re.search(r"-?\b(?:NaN|Infinity)\b", blank)
-    if not m:
-        return ""
-    line = text.count("\n", 0, m.start()) + 1
-    col = m.start() - (text.rfind("\n", 0, m.start()) + 1) + 1
-    return f"line {line}, column {col}: "
+    raise SectionError(f"load_section takes a path or a dict, got {type(path_or_dict).__name__}")  # API misuse
 
 
 def _label(data: Any, loc: tuple) -> str:
@@ -248,7 +220,7 @@ def _format_pydantic(e: ValidationError, data: dict, label: str) -> str:
     elif t in ("float_type", "int_type", "string_type", "bool_type", "list_type", "dict_type", "model_type",
                "float_parsing", "int_from_float", "literal_error", "model_attributes_type"):
         got = err.get("input")
-        shown = json.dumps(got) if isinstance(got, (int, float, str, bool, type(None))) else type(got).__name__
+        shown = _short(json.dumps(got)) if isinstance(got, (int, float, str, bool, type(None))) else json_type(got)
         want = {"float_type": "a number", "int_type": "a whole number", "string_type": "a string",
                 "bool_type": "true or false", "list_type": "a list", "dict_type": "an object {...}",
                 "model_type": "an object {...}", "model_attributes_type": "an object {...}",
@@ -256,10 +228,15 @@ def _format_pydantic(e: ValidationError, data: dict, label: str) -> str:
         msg = (f"expected {want}, got {shown}" if want else str(err["msg"]).lower() + f", got {shown}")
     else:
         got = err.get("input")
-        tail = f", got {json.dumps(got)}" if isinstance(got, (int, float, str, bool)) else ""
+        tail = f", got {_short(json.dumps(got))}" if isinstance(got, (int, float, str, bool)) else ""
         msg = str(err["msg"]).lower() + tail
     more = f" (and {len(errs) - 1} more)" if len(errs) > 1 else ""
     return f"{label}: {where + ': ' if where else ''}{msg}{more}"
+
+
+def _short(text: str, limit: int = 60) -> str:
+    """A value shown in a message, shortened when long (a 400-digit number, a pasted paragraph)."""
+    return text if len(text) <= limit else f"{text[:40]}...{text[-10:]} ({len(text)} characters)"
 
 
 def _hash(data: dict) -> str:
@@ -406,6 +383,82 @@ def _check_water_levels(spec: SectionSpec, outline, blines: list, polys: list, t
                            "(a seepage face, a drain or a lower head)")
 
 
+#: a head may lie at most this far outside the section's elevations, m: max(HEAD_MARGIN, 10 x extent)
+HEAD_MARGIN = 1000.0
+#: water's unit weight, kN/m3: fresh water 9.81, sea water about 10.05, dense brines about 12 (common practice)
+WATER_UNIT_WEIGHT = (9.0, 12.0)
+#: saturated unit weight of soils and rocks, kN/m3 (about 14 to 28; common practice)
+SOIL_UNIT_WEIGHT_MAX = 30.0
+#: specific gravity of soil solids and void ratio (-): minerals about 2.0 to 3.0, heavy ones up to 5;
+#: peats reach void ratios of about 15 (common practice)
+SPECIFIC_GRAVITY = (1.0, 5.0)
+VOID_RATIO_MAX = 20.0
+#: most check points the underseepage checks may place along the boundaries (checks.spacing)
+MAX_CHECK_POINTS = 1_000_000
+
+
+def _check_plausible(spec: SectionSpec, outline: Polygon, extent: float, tol: float) -> None:
+    """Values that are valid numbers but nonsense for a section: one-line SectionErrors naming the item."""
+    from .geometry import fmt_xy
+    gw = spec.water.unit_weight
+    if not WATER_UNIT_WEIGHT[0] <= gw <= WATER_UNIT_WEIGHT[1]:
+        raise SectionError(f"water.unit_weight: {gw:g} kN/m3 is not water's ({WATER_UNIT_WEIGHT[0]:g} to "
+                           f"{WATER_UNIT_WEIGHT[1]:g} kN/m3; fresh water 9.81); check the value and its units")
+    for name, m in spec.materials.items():
+        if m.unit_weight is not None and not gw < m.unit_weight <= SOIL_UNIT_WEIGHT_MAX:
+            raise SectionError(f"material '{name}': unit_weight {m.unit_weight:g} kN/m3 is "
+                               + (f"not more than water's ({gw:g} kN/m3): a saturated soil is heavier than water"
+                                  if m.unit_weight <= gw else
+                                  f"more than any soil or rock ({SOIL_UNIT_WEIGHT_MAX:g} kN/m3)")
+                               + "; check the value and its units")
+        if m.specific_gravity is not None and not SPECIFIC_GRAVITY[0] < m.specific_gravity <= SPECIFIC_GRAVITY[1]:
+            raise SectionError(f"material '{name}': specific_gravity {m.specific_gravity:g} is outside "
+                               f"{SPECIFIC_GRAVITY[0]:g} to {SPECIFIC_GRAVITY[1]:g} (soil solids are about 2.65)")
+        if m.void_ratio is not None and not m.void_ratio <= VOID_RATIO_MAX:
+            raise SectionError(f"material '{name}': void_ratio {m.void_ratio:g} is more than {VOID_RATIO_MAX:g}")
+    x0, y0, x1, y1 = outline.bounds
+    margin = max(HEAD_MARGIN, 10.0 * extent)
+
+    def level(what: str, h: float) -> None:
+        off = max(y0 - h, h - y1, 0.0)
+        if off > margin:
+            side = "above the top" if h > y1 else "below the base"
+            raise SectionError(f"{what}: {h:.6g} m lies {off:.4g} m {side} of the section (y = {y0:.6g} to "
+                               f"{y1:.6g} m); a head is a water level in m: check the value and its units")
+
+    for b in spec.boundaries:
+        if b.head is not None:
+            level(f"boundary '{b.name}': head", b.head)
+        if b.flux is not None and abs(b.flux) > K_RANGE[1]:
+            raise SectionError(f"boundary '{b.name}': flux {b.flux:g} m/s is more than the conductivity of any soil "
+                               f"({K_RANGE[1]:g} m/s); check the value and its units")
+    c = spec.checks
+    if c.landside_water_level is not None:
+        level("checks.landside_water_level", c.landside_water_level)
+    for key in ("toe_x", "riverside_toe_x"):
+        v = getattr(c, key)
+        if v is not None and not x0 - tol <= v <= x1 + tol:
+            raise SectionError(f"checks.{key}: x = {v:.6g} m is off the section (it spans x = {x0:.6g} to "
+                               f"{x1:.6g} m)")
+    if c.cutoff is not None:
+        for x, y in c.cutoff:
+            if not (x0 - tol <= x <= x1 + tol and y0 - tol <= y <= y1 + tol):
+                raise SectionError(f"checks.cutoff: point [{x:.6g}, {y:.6g}] is off the section (x = {x0:.6g} to "
+                                   f"{x1:.6g} m, y = {y0:.6g} to {y1:.6g} m)")
+    if c.spacing is not None:
+        length = sum(LineString(b.polyline).length for b in spec.boundaries)
+        if length / c.spacing > MAX_CHECK_POINTS:
+            raise SectionError(f"checks.spacing: {c.spacing:g} m would place about {length / c.spacing:.3g} check "
+                               f"points along the boundaries (at most {MAX_CHECK_POINTS:.0e}); use a larger spacing")
+    grown = outline.buffer(tol * 10)
+    for i, r in enumerate(spec.mesh.refine):
+        geom = LineString(r.polyline) if r.polyline is not None else ShapelyPoint(r.point)
+        if not grown.intersects(geom):
+            where = fmt_xy(r.polyline[0] if r.polyline is not None else r.point)
+            raise SectionError(f"mesh.refine[{i}]: the {'polyline' if r.polyline is not None else 'point'} "
+                               f"(at {where}) lies outside the section; it would refine nothing")
+
+
 def _build(spec: SectionSpec, data: dict, label: str, notes: tuple = (), parts: dict | None = None) -> Section:
     from . import geometry        # scipy and the geometry checks only once the file has passed its schema
     # names
@@ -438,6 +491,7 @@ def _build(spec: SectionSpec, data: dict, label: str, notes: tuple = (), parts: 
     tol = 1e-7 * extent
     polys = [geometry.clean_polygon(f"zone '{z.name}'", z.polygon, tol) for z in spec.zones]
     outline = geometry.check_tiling(names, polys, extent)
+    _check_plausible(spec, outline, extent, tol)
     blines = []
     for b in spec.boundaries:
         bl = np.asarray(b.polyline, dtype=float)

@@ -513,7 +513,9 @@ def conductivity_hints(materials: dict, units: Units) -> list[str]:
     the value misses by far while the value read in cm/s (or m/s) fits it.
     """
     out = []
-    for name, m in (materials or {}).items():
+    if not isinstance(materials, dict):
+        return out                       # not an object: the schema says so, with the item
+    for name, m in materials.items():
         if not isinstance(m, dict):
             continue
         desc = m.get("description") if isinstance(m.get("description"), str) else ""

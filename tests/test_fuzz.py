@@ -9,6 +9,8 @@ Never another exception, never a hang.
 
 Meshes are kept small (coarse ``mesh.size`` and a low ``mesh.max_elements``) so the whole file runs
 in well under a minute.  ``SEEPFE_FUZZ_EXAMPLES`` raises the number of cases for a longer local run.
+CI also runs the slow-marked ``..._at_scale`` tests: 3000 cases on the fixed seed 2
+(``SEEPFE_FUZZ_CI_EXAMPLES`` changes the count).
 """
 
 from __future__ import annotations
@@ -21,7 +23,7 @@ import os
 
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, given, seed, settings
 from hypothesis import strategies as st
 
 import seepfe
@@ -31,6 +33,9 @@ MAX_ELEMENTS = 3000
 
 _FUZZ = settings(max_examples=EXAMPLES, deadline=None, derandomize="SEEPFE_FUZZ_EXAMPLES" not in os.environ,
                  suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large], database=None)
+#: the CI run: many more cases on a fixed seed (the seed and count at which issue 15 found a balance of
+#: 1.55e-8 against the 1e-8 bound below)
+_FUZZ_CI = settings(_FUZZ, max_examples=int(os.environ.get("SEEPFE_FUZZ_CI_EXAMPLES", "3000")), derandomize=False)
 
 
 def _levee() -> dict:
@@ -96,10 +101,12 @@ def _get(d, path):
 
 _numbers = st.sampled_from([math.nan, math.inf, -math.inf, 1e300, -1e300, 1e-300, -1e-300, 0.0, -1.0, 1e-12,
                             1e12, 3, 2**63, 0.5])
+# every draw is a fresh object (a deep copy): one list or dict handed out twice and put in two places
+# would make the mutated section share, or even contain, itself
 _values = st.one_of(
     _numbers,
     st.sampled_from(["", "x", "1e-7", None, True, False, [], {}, [1.0], [[0.0, 0.0]], [1.0, 2.0, 3.0],
-                     {"k": 1e-7}, "sand", "fill", [[0, 0], [1, 0], [0, 1]]]),
+                     {"k": 1e-7}, "sand", "fill", [[0, 0], [1, 0], [0, 1]]]).map(copy.deepcopy),
     st.floats(allow_nan=True, allow_infinity=True),
     st.integers(min_value=-10, max_value=10),
 )
@@ -202,9 +209,14 @@ def test_bases_are_valid(base):
     assert _check(base()) == "ok"
 
 
-@_FUZZ
-@given(base=st.sampled_from(BASES), mutations=st.lists(_mutation, min_size=1, max_size=3))
-def test_mutated_sections_solve_or_raise_seepfe_error(base, mutations):
+@settings(max_examples=300, derandomize=True, database=None, deadline=None)
+@given(a=_values, b=_values)
+def test_value_generator_hands_out_fresh_objects(a, b):
+    if isinstance(a, (list, dict)) and isinstance(b, (list, dict)):
+        assert a is not b
+
+
+def _mutated(base, mutations):
     d = base()
     for m in mutations:
         try:
@@ -216,8 +228,20 @@ def test_mutated_sections_solve_or_raise_seepfe_error(base, mutations):
 
 
 @_FUZZ
-@given(base=st.sampled_from(BASES), cut=st.integers(0, 10**6), junk=st.binary(min_size=1, max_size=4))
-def test_corrupted_file_bytes_load_or_raise_section_error(tmp_path_factory, base, cut, junk):
+@given(base=st.sampled_from(BASES), mutations=st.lists(_mutation, min_size=1, max_size=3))
+def test_mutated_sections_solve_or_raise_seepfe_error(base, mutations):
+    _mutated(base, mutations)
+
+
+@pytest.mark.slow
+@seed(2)
+@_FUZZ_CI
+@given(base=st.sampled_from(BASES), mutations=st.lists(_mutation, min_size=1, max_size=3))
+def test_mutated_sections_at_scale(base, mutations):
+    _mutated(base, mutations)
+
+
+def _corrupted(tmp_path_factory, base, cut, junk):
     text = json.dumps(base(), indent=1).encode()
     k = cut % len(text)
     p = tmp_path_factory.mktemp("fz") / "section.json"
@@ -226,6 +250,20 @@ def test_corrupted_file_bytes_load_or_raise_section_error(tmp_path_factory, base
         seepfe.load_section(p)
     except seepfe.SectionError as e:
         assert str(e).startswith(str(p)) and "\n" not in str(e)
+
+
+@_FUZZ
+@given(base=st.sampled_from(BASES), cut=st.integers(0, 10**6), junk=st.binary(min_size=1, max_size=4))
+def test_corrupted_file_bytes_load_or_raise_section_error(tmp_path_factory, base, cut, junk):
+    _corrupted(tmp_path_factory, base, cut, junk)
+
+
+@pytest.mark.slow
+@seed(2)
+@_FUZZ_CI
+@given(base=st.sampled_from(BASES), cut=st.integers(0, 10**6), junk=st.binary(min_size=1, max_size=4))
+def test_corrupted_file_bytes_at_scale(tmp_path_factory, base, cut, junk):
+    _corrupted(tmp_path_factory, base, cut, junk)
 
 
 def _scaled(d, f=None, shift=0.0):
@@ -254,8 +292,18 @@ EDGES = {
                     "SectionError"),
     "all k at the ends of the range": (lambda d: d.update(materials={"fill": {"k": 1e-20}, "blanket": {"k": 1e-20},
                                                                      "sand": {"k": 10.0}}), "unconverged"),
-    "head 1e300": (lambda d: d["boundaries"][0].update(head=1e300), "SectionError"),   # above the crest
-    "flux 1e300": (lambda d: d["boundaries"][2].update(flux=1e300), "ok"),
+    # above the crest (refused since the water-level checks), or a head far outside the section's elevations,
+    # or a flux above any soil's conductivity (issue 15: heads of 1e6 m were accepted, 1e300 broke a figure
+    # formatter)
+    "head 1e300": (lambda d: d["boundaries"][0].update(head=1e300), "SectionError"),
+    "head 1e6": (lambda d: d["boundaries"][0].update(head=1e6), "SectionError"),
+    "flux 1e300": (lambda d: d["boundaries"][2].update(flux=1e300), "SectionError"),
+    # the case the seed-2, 3000-example run found: balance 1.55e-8 (unconfined Newton stopped at a flow
+    # residual of 8e-8); the correction computed at the stop is now applied
+    "refine size 3 (balance 1.55e-8)": (lambda d: d["mesh"]["refine"][0].update(size=3.0), "ok"),
+    # found by the seed-2 run after the units layer came in: a conductivity-unit hint read every
+    # 'materials' as an object (AttributeError)
+    "materials NaN": (lambda d: d.update(materials=math.nan), "SectionError"),
     "angle 1e300 deg": (lambda d: d["materials"]["sand"].update(angle=1e300), "ok"),
     "section in micrometres": (lambda d: _scaled(d, 1e-6), "ok"),
     "section in megametres": (lambda d: _scaled(d, 1e6), "ok"),

@@ -29,7 +29,6 @@ from __future__ import annotations
 import json
 import math
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Annotated, Literal, Optional, Union
 
 import numpy as np
@@ -197,26 +196,13 @@ def read_json(path_or_dict, what: str = "observations") -> tuple[dict, str]:
     """(data, label) of a JSON file or a dict; one-line errors."""
     if isinstance(path_or_dict, dict):
         return path_or_dict, f"<{what}>"
+    from ..jsonin import read_json as _read
     label = str(path_or_dict)
-    try:
-        text = Path(path_or_dict).read_text(encoding="utf-8-sig")
-    except (OSError, UnicodeDecodeError) as e:
-        raise SectionError(f"{label}: cannot read the file ({getattr(e, 'strerror', None) or e})") from None
-    try:
-        data = json.loads(text, parse_constant=_reject)
-    except json.JSONDecodeError as e:
-        raise SectionError(f"{label}: not valid JSON at line {e.lineno}, column {e.colno}: {e.msg}") from None
-    except ValueError as e:
-        raise SectionError(f"{label}: {e}") from None
-    except RecursionError:
-        raise SectionError(f"{label}: not valid JSON: nested too deeply") from None
+    data = _read(path_or_dict, f"{what} file")      # size cap, UTF-8, duplicate keys, nesting, NaN refused
     if not isinstance(data, dict):
-        raise SectionError(f"{label}: the top level must be a JSON object {{...}}, got {type(data).__name__}")
+        from ..jsonin import json_type
+        raise SectionError(f"{label}: the top level must be a JSON object {{...}}, got {json_type(data)}")
     return data, label
-
-
-def _reject(name: str):
-    raise ValueError(f"'{name}' is not a number JSON allows; write a finite number")
 
 
 def _where(data: dict, loc: tuple) -> str:

@@ -114,10 +114,9 @@ class ExitChecks:
     def to_csv(self, path, units=None) -> None:
         """Write one row per check point; the header names carry units (gradients m/m, FS -). With
         ``units`` (seepfe.units.Units) other than SI, the lengths follow again in those units."""
+        from ..csvfile import write_csv
         from ..units import display_columns
-        cols = display_columns(self.columns(), units)
-        np.savetxt(path, np.column_stack([np.asarray(v, float) for v in cols.values()]), delimiter=",",
-                   header=",".join(cols), comments="", fmt="%.10g")
+        write_csv(path, display_columns(self.columns(), units))
 
     def to_dict(self) -> dict:
         """Plain-data summary for summary.json (governing values, criteria, methods, notes)."""
@@ -370,6 +369,9 @@ def exit_gradients(result, name: str, spacing: float | None = None, depth: float
     ee = np.append(ee, len(edges) - 1)
     node = np.append(node, True)
     if spacing:
+        if not (sb[-1] - sa[0]) / spacing <= 1_000_000:
+            raise SectionError(f"{sec.source}: checks.spacing: {spacing:g} m would place more than a million check "
+                               f"points along '{name}'; use a larger spacing")
         s_all = np.arange(sa[0], sb[-1] + 1e-12, spacing)
         ke = np.clip(np.searchsorted(sb, s_all), 0, len(edges) - 1)
         ts = np.clip((s_all - sa[ke]) / np.maximum(sb[ke] - sa[ke], 1e-300), 0, 1)

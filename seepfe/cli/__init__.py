@@ -5,6 +5,9 @@ Each subcommand module has ``register(subparsers)``, which adds its parser and s
 ``seepfe: error: ...`` on stderr and exit code 2 (3 for a solve that did not converge, 4 for a sweep
 stopped early, 130 when interrupted; :data:`seepfe.cli.common.EXIT_CODES`). Results go to stdout;
 ``-v`` logs the stages to stderr, ``-q`` prints nothing but errors; progress bars go to stderr.
+Text from the input (names, titles, keys) is printed so it cannot break that line (control characters
+escaped). SIGTERM and SIGHUP stop a run the way Ctrl-C does: temporary folders are removed and sweep
+workers stopped; the exit code is 128 + the signal number.
 """
 
 from __future__ import annotations
@@ -14,7 +17,10 @@ import contextlib
 import importlib
 import io
 import logging
+import signal
 import sys
+import threading
+import warnings
 
 from ..about import __version__
 from ..errors import SeepfeError
@@ -47,7 +53,44 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+class _Signalled(BaseException):
+    """A termination signal, raised in the main thread so that cleanup (finally blocks) runs."""
+
+    def __init__(self, signum: int):
+        super().__init__(signum)
+        self.signum = signum
+
+
+def _raise_signal(signum, frame):
+    raise _Signalled(signum)
+
+
+@contextlib.contextmanager
+def _signals_stop_cleanly():
+    """SIGTERM/SIGHUP raise in the main thread while the command runs (the old handlers come back after)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    old = {}
+    for name in ("SIGTERM", "SIGHUP"):
+        sig = getattr(signal, name, None)
+        if sig is not None:
+            old[sig] = signal.signal(sig, _raise_signal)
+    try:
+        yield
+    finally:
+        for sig, h in old.items():
+            signal.signal(sig, h)
+
+
+def _warning_line(message, category, filename, lineno, file=None, line=None):
+    """A library warning that slipped through, as one line on stderr (never source lines)."""
+    from ..text import one_line
+    print(f"seepfe: warning: {one_line(str(message))} ({category.__name__})", file=sys.stderr)
+
+
 def main(argv=None) -> int:
+    from ..text import one_line
     parser = build_parser()
     args = parser.parse_args(argv)
     level = logging.INFO if args.verbose else logging.ERROR if args.quiet else logging.WARNING
@@ -58,19 +101,26 @@ def main(argv=None) -> int:
     lg.handlers[:] = [handler]
     lg.setLevel(level)
     lg.propagate = False
+    old_show = warnings.showwarning
+    warnings.showwarning = _warning_line
     try:
-        with contextlib.redirect_stdout(io.StringIO()) if args.quiet else contextlib.nullcontext():
+        quiet = contextlib.redirect_stdout(io.StringIO()) if args.quiet else contextlib.nullcontext()
+        with _signals_stop_cleanly(), quiet:
             return args.func(args)
     except SeepfeError as e:
-        print(f"seepfe: error: {e}", file=sys.stderr)
+        print(f"seepfe: error: {one_line(str(e))}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("seepfe: interrupted", file=sys.stderr)
         return 130
+    except _Signalled as e:
+        print(f"seepfe: stopped by {signal.Signals(e.signum).name}; nothing half-written was kept", file=sys.stderr)
+        return 128 + e.signum
     finally:
         lg.setLevel(old[0])
         lg.propagate = old[1]
         lg.handlers[:] = old[2]
+        warnings.showwarning = old_show
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -34,6 +34,9 @@ def register(sub) -> None:
 def run(args) -> int:
     from pathlib import Path
 
+    from .common import check_out_dir
+    check_out_dir(args.out)                    # --out first: refused before any work
+
     from ..calibration import calibrate, write_into
     from ..errors import SeepfeError
     from ..output import atomic_dir

@@ -7,7 +7,8 @@ import logging
 
 from ..text import table
 
-__all__ = ["table", "add_section_args", "add_solve_args", "solve_section", "parser_for", "EXIT_CODES"]
+__all__ = ["table", "add_section_args", "add_solve_args", "solve_section", "parser_for", "EXIT_CODES",
+           "check_out_dir"]
 
 log = logging.getLogger("seepfe")
 
@@ -17,7 +18,8 @@ EXIT_CODES = """exit codes:
   2    bad input or options: one line on stderr names the file, the item and the fault; nothing is written
   3    a solve did not converge: the best iterate is written and marked, and must not be used
   4    a sweep stopped early on --max-solves: finished cases are kept; run the same command to go on
-  130  interrupted (Ctrl-C)"""
+  130  interrupted (Ctrl-C)
+  143  stopped by SIGTERM (129: SIGHUP): temporary folders removed, sweep workers stopped"""
 
 
 def parser_for(sub, name: str, help: str, description: str, examples: str):
@@ -37,11 +39,23 @@ def _positive(text: str) -> float:
     return v
 
 
+def check_out_dir(path, sweep: bool = False) -> None:
+    """Check ``--out`` before any long solve: not the current folder, replaceable (only a folder seepfe
+    wrote, holding nothing else) or a sweep folder, and writable; one-line SeepfeError otherwise."""
+    if sweep:
+        from ..sweep.api import check_sweep_folder
+        check_sweep_folder(path)
+    else:
+        from ..output import check_out
+        check_out(path)
+
+
 def add_section_args(p, out: bool = True) -> None:
     """SECTION, --out DIR (optional) and --order, --size of the mesh."""
     p.add_argument("section", help="section file (JSON)")
     if out:
-        p.add_argument("--out", required=True, help="output folder (replaced whole on success)")
+        p.add_argument("--out", required=True, help="output folder, replaced whole on success; only an empty "
+                       "folder or one seepfe wrote (holding nothing else) is replaced, anything else is refused")
     p.add_argument("--order", type=int, choices=(1, 2), default=None, help="element order (default: file, 2)")
     p.add_argument("--size", type=_positive, default=None,
                    help="element size, in the section file's length unit (default: the file's mesh.size)")

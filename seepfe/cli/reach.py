@@ -29,6 +29,9 @@ def register(sub) -> None:
 def run(args) -> int:
     import sys
 
+    from .common import check_out_dir
+    check_out_dir(args.out, sweep=True)        # --out first: refused before any solve
+
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 import math
 
 from ..about import CAUTION
-from .common import parser_for, table
+from .common import check_out_dir, parser_for, table
 
 
 def register(sub) -> None:
@@ -40,6 +40,7 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
+    check_out_dir(args.out, sweep=True)
     from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn,
                                TimeRemainingColumn)
 
@@ -81,6 +82,12 @@ def run(args) -> int:
         print(f"stopped after {rep.solved} new solves (--max-solves); run the same command again to finish. "
               f"Finished cases are kept in {args.out}/cases/.")
         return 4
+    if rep.cases and rep.failed == rep.cases:
+        from ..errors import SeepfeError
+        first = next((r for r in rep.table if r["status"].startswith("error")), None)
+        raise SeepfeError(f"every case of the sweep failed ({rep.cases} of {rep.cases})"
+                          + (f"; first: case {first['case']}: {first['status']}" if first else "")
+                          + f"; the table is in {rep.results_dir}/")
     if rep.table:
         bad = [r for r in rep.table if r["status"] != "ok"]
         fails = [r for r in rep.table if r["verdict"] == "fail"]

@@ -190,6 +190,8 @@ def frame(window, max_height_in: float = 6.5, title: str | None = None, units=No
     if ah > max_height_in:
         ah = max_height_in
         aw = ah * (x1 - x0) / (ve * (y1 - y0))
+    if title:
+        title = text(title)
     if title and len(title) > 70:
         import textwrap
         title = "\n".join(textwrap.wrap(title, 70))
@@ -219,13 +221,21 @@ def frame(window, max_height_in: float = 6.5, title: str | None = None, units=No
     return fr
 
 
+def text(s) -> str:
+    """User text (a title or a name) as matplotlib shows it literally: '$' escaped, so '$x$' in a name is
+    neither typeset as mathematics nor (unbalanced, '$\\frac{a$') an error when the figure is drawn."""
+    return str(s).replace("$", r"\$")
+
+
 _SUP = str.maketrans("-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079")
 
 
 def fmt_sci(v: float, digits: int = 1) -> str:
     """A number in scientific notation with Unicode superscripts: 2.5e-05 -> '2.5×10⁻⁵'.
 
-    Plain text (no mathtext): fast to lay out, and a '$' in a name can never start math mode."""
+    Plain text (no mathtext): fast to lay out; names beside it go through :func:`text`."""
+    if not math.isfinite(v):
+        return str(v)
     if v == 0:
         return "0"
     e = int(math.floor(math.log10(abs(v))))
@@ -271,7 +281,7 @@ def draw_zone_edges(ax, section, colour=INK, lw: float = 0.6, zorder: float = 3)
         for b in bars:
             p = np.asarray(b.polyline, float)
             k = int(np.argmin(p[:, 1]))
-            ax.annotate(b.name, p[k], xytext=(4, -4), textcoords="offset points", fontsize=6.5, color=INK,
+            ax.annotate(text(b.name), p[k], xytext=(4, -4), textcoords="offset points", fontsize=6.5, color=INK,
                         ha="left", va="top", zorder=zorder + 4, annotation_clip=True,
                         bbox=dict(boxstyle="round,pad=0.12", fc="white", ec="none", alpha=0.8))
 
@@ -282,7 +292,8 @@ def material_handles(section, colours: dict) -> list:
     out = []
     for name in dict.fromkeys(z.material for z in section.spec.zones):
         mat = section.spec.materials[name]
-        out.append(Patch(facecolor=colours[name], edgecolor=INK, linewidth=0.5, label=f"{name}: {fmt_k(mat, section.units)}"))
+        out.append(Patch(facecolor=colours[name], edgecolor=INK, linewidth=0.5,
+                         label=f"{text(name)}: {fmt_k(mat, section.units)}"))
     return out
 
 
@@ -290,12 +301,13 @@ def boundary_label(b, units=None) -> str:
     """'river: head 4.50 m', 'landside: seepage face', ... (values in the display units of ``units``)."""
     from ..units import SI
     u = units or SI
+    name = text(b.name)
     if b.kind == "head":
-        s = f"{b.name}: head {u.from_si(b.head, 'length'):.2f} {u.length}"
+        s = f"{name}: head {u.from_si(b.head, 'length'):.2f} {u.length}"
         return s + " (dry above)" if b.dry_above_level else s
     if b.kind == "flux":
-        return f"{b.name}: inflow {fmt_sci(u.from_si(b.flux, 'flux'))} {u.label('flux')}"
-    return f"{b.name}: {'seepage face' if b.kind == 'seepage_face' else 'drain'}"
+        return f"{name}: inflow {fmt_sci(u.from_si(b.flux, 'flux'))} {u.label('flux')}"
+    return f"{name}: {'seepage face' if b.kind == 'seepage_face' else 'drain'}"
 
 
 def draw_boundaries(ax, section, labels: bool = True, window=None, zorder: float = 6):

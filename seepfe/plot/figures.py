@@ -282,7 +282,7 @@ def flow_net_figure(result, window=None, title: str | None = None, n_drops: int 
         k_txt = base.fmt_sci(net.k_ref / u.factor("conductivity"), 2)
         if net.squares:
             txt = (f"Nf = {net.n_channels:.2f} flow channels,  Nd = {net.n_drops} head drops,  H = {hl:.3g} {L_u},  "
-                   f"k = {k_txt} {u.conductivity} ({net.reference_material})\n"
+                   f"k = {k_txt} {u.conductivity} ({base.text(net.reference_material)})\n"
                    f"q = k H Nf / Nd = {base.fmt_sci(net.k_ref * net.head_loss * net.shape_factor / fq, 3)} {fl_u};  "
                    f"solver: {base.fmt_sci(net.q_solver / fq, 3)} {fl_u}")
         else:

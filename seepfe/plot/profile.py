@@ -20,6 +20,7 @@ import math
 
 import numpy as np
 
+from .base import text
 from .style import FIG_WIDTH_IN, INK, MUTED, OKABE_ITO, style, tint
 
 __all__ = ["exit_gradient_figure", "failing_stretches"]
@@ -175,7 +176,7 @@ def exit_gradient_figure(profile, title: str | None = None, required_fs: float |
                         color=INK, zorder=7, bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.85))
         a1.set_ylabel("gradient (m/m)")
         a1.tick_params(labelbottom=False)
-        a1.set_title(title or (f"Exit gradients along '{name}'" if name else "Exit gradients"), pad=6)
+        a1.set_title(text(title or (f"Exit gradients along '{name}'" if name else "Exit gradients")), pad=6)
 
         cap = fs_cap or max(2.5 * max(req_h, req_u), 3.0)
         shown = []

@@ -87,13 +87,9 @@ def station_value(s) -> float:
 
 
 def load_reach(path) -> tuple[ReachSpec, Path, str]:
+    from ..jsonin import read_json
     p = Path(path)
-    try:
-        data = json.loads(p.read_text(encoding="utf-8-sig"))
-    except OSError as x:
-        raise SeepfeError(f"{p}: cannot read the reach file ({x.strerror})") from None
-    except ValueError as x:
-        raise SeepfeError(f"{p}: not JSON ({x})") from None
+    data = read_json(p, "reach file")                  # size cap, UTF-8, duplicate keys, nesting checked
     try:
         spec = ReachSpec.model_validate(data)
     except ValidationError as x:
@@ -113,6 +109,12 @@ def load_reach(path) -> tuple[ReachSpec, Path, str]:
         if not f.is_file():
             raise SeepfeError(f"{p}: stations.{k}: no section file '{st.section}' (looked for {f})")
     return spec, p.parent, str(p)
+
+
+def station_fault(record, payload=None):
+    """Why a cached station record may not be reused (None when it may): a case record plus the station's report."""
+    from ..sweep.cache import record_fault
+    return record_fault(record, None, extra={"report_html": str, "summary_json": str, "seepage_m3_s_per_m": float})
 
 
 def run_station(payload: dict) -> dict:
@@ -163,87 +165,89 @@ def run_reach(reach, out, *, workers=None, scheduler=None, max_solves=None, pape
     """Solve every station of a reach file (resumable through ``out/cases``) and write ``out/results``."""
     from ..output import atomic_dir
     from ..section import _read
-    from ..sweep.api import _prepare_out
+    from ..sweep.api import _locked, _prepare_out
     from ..sweep.runner import Runner
     from ..sweep.values import with_values
     from ..units import parse_units
     spec, base, label = load_reach(reach)
     out = Path(out)
     _prepare_out(out)
-    (out / MARKER).write_text("seepfe reach folder: cases/ is the resumable cache, results/ the final files\n")
-    stations = sorted(spec.stations, key=lambda s: station_value(s.station))
-    datas = []
-    for st in stations:
-        data, slabel = _read(base / st.section)
-        u = parse_units(data.get("units"), slabel)
-        opts = {k: v for k, v in (("order", spec.solve.order),
-                                  ("size", None if spec.solve.size is None else spec.solve.size * u.factor("length")))
-                if v is not None}
-        datas.append((st, data, slabel, opts))
-    main = [{"section": d, "solve": o, "report": {"paper": paper}} for _, d, _, o in datas]
-    stage_pl = []
-    if spec.stages is not None:
-        for st, d, slabel, o in datas:
-            for v in spec.stages.values:
-                try:
-                    stage_pl.append({"section": with_values(d, {spec.stages.key: float(v)}, slabel), "solve": o,
-                                     "points": {}, "exit": None})
-                except SeepfeError as x:
-                    raise SeepfeError(f"{label}: stages: {x}") from None
-    solved = cached = 0
-    with Runner(cache_dir=out / "cases", workers=workers, scheduler=scheduler, max_solves=max_solves,
-                func=run_station) as r1:
-        recs = r1.run(main, (lambda d, n, c: progress("stations", d, n, c)) if progress else None)
-        solved, cached = r1.solved, r1.cached
-        backend = r1.backend
-    srecs = []
-    if stage_pl and all(x is not None for x in recs):
-        with Runner(cache_dir=out / "cases", workers=workers, scheduler=scheduler,
-                    max_solves=None if max_solves is None else max(0, max_solves - solved)) as r2:
-            srecs = r2.run(stage_pl, (lambda d, n, c: progress("stages", d, n, c)) if progress else None)
-            solved, cached = solved + r2.solved, cached + r2.cached
-    complete = all(x is not None for x in recs) and all(x is not None for x in srecs)
-    res_dir = out / "results"
-    if not complete:
-        return ReachResult(results=res_dir, rows=[], solved=solved, cached=cached, complete=False, backend=backend)
-    from ..section import load_section
-    rows = []
-    nst = len(spec.stages.values) if spec.stages is not None else 0
-    for i, ((st, d, slabel, o), rec) in enumerate(zip(datas, recs)):
-        sec = load_section(d) if not rec.get("status", "").startswith("error") else None
-        g = rec.get("governing") or {}
-        row = {"station": str(st.station), "station_value": station_value(st.station), "section": st.section,
-               "title": (sec.spec.title if sec else ""), "status": rec.get("status", ""),
-               "fs": g.get("fs"), "fs_mode": g.get("mode"), "exit_gradient_max": g.get("exit_gradient_max"),
-               "failing_length_m": g.get("failing_length_m"), "fails_within_m_of_toe": g.get("fails_within_m_of_toe"),
-               "seepage_m3_s_per_m": rec.get("seepage_m3_s_per_m"), "verdict": g.get("verdict", "not checked"),
-               "why": g.get("why", rec.get("status", "")), "units": sec.units if sec else None,
-               "slug": _slug(st.station), "rec": rec}
-        if nst:
-            row["stages"] = [(float(v), (sr.get("governing") or {})) for v, sr in
-                             zip(spec.stages.values, srecs[i * nst:(i + 1) * nst])]
-        rows.append(row)
-    with atomic_dir(res_dir) as tmp:
-        (tmp / "stations").mkdir()
-        for row in rows:
-            rec = row["rec"]
-            if "report_html" in rec:
-                sd = tmp / "stations" / row["slug"]
-                sd.mkdir()
-                (sd / "report.html").write_text(rec["report_html"], encoding="utf-8")
-                (sd / "summary.json").write_text(rec["summary_json"] + "\n", encoding="utf-8")
-        _write_csv(tmp / "reach.csv", rows, spec)
-        html = build_reach_report(spec, label, rows, paper=paper, backend=backend, solved=solved, cached=cached)
-        (tmp / "report.html").write_text(html, encoding="utf-8")
-        from ..output import write_json
-        write_json(tmp / "reach.json", {"reach_file": label, "stations": [r["station"] for r in rows],
-                                        "solved_this_run": solved, "from_cache": cached, "backend": backend,
-                                        "caution": _caution()})
-        if pdf:
-            from .pdf import write_pdf
-            write_pdf(tmp / "report.html", tmp / "report.pdf")
-    return ReachResult(results=res_dir, rows=[{k: v for k, v in r.items() if k not in ("rec", "units")} for r in rows],
-                       solved=solved, cached=cached, complete=True, backend=backend)
+    with _locked(out):                     # one run per folder: a second is refused with one line
+        (out / MARKER).write_text("seepfe reach folder: cases/ is the resumable cache, results/ the final files\n")
+        stations = sorted(spec.stations, key=lambda s: station_value(s.station))
+        datas = []
+        for st in stations:
+            data, slabel = _read(base / st.section)
+            u = parse_units(data.get("units"), slabel)
+            size = None if spec.solve.size is None else spec.solve.size * u.factor("length")
+            opts = {k: v for k, v in (("order", spec.solve.order), ("size", size)) if v is not None}
+            datas.append((st, data, slabel, opts))
+        main = [{"section": d, "solve": o, "report": {"paper": paper}} for _, d, _, o in datas]
+        stage_pl = []
+        if spec.stages is not None:
+            for st, d, slabel, o in datas:
+                for v in spec.stages.values:
+                    try:
+                        stage_pl.append({"section": with_values(d, {spec.stages.key: float(v)}, slabel), "solve": o,
+                                         "points": {}, "exit": None})
+                    except SeepfeError as x:
+                        raise SeepfeError(f"{label}: stages: {x}") from None
+        solved = cached = 0
+        with Runner(cache_dir=out / "cases", workers=workers, scheduler=scheduler, max_solves=max_solves,
+                    func=run_station, validate=station_fault) as r1:
+            recs = r1.run(main, (lambda d, n, c: progress("stations", d, n, c)) if progress else None)
+            solved, cached = r1.solved, r1.cached
+            backend = r1.backend
+        srecs = []
+        if stage_pl and all(x is not None for x in recs):
+            with Runner(cache_dir=out / "cases", workers=workers, scheduler=scheduler,
+                        max_solves=None if max_solves is None else max(0, max_solves - solved)) as r2:
+                srecs = r2.run(stage_pl, (lambda d, n, c: progress("stages", d, n, c)) if progress else None)
+                solved, cached = solved + r2.solved, cached + r2.cached
+        complete = all(x is not None for x in recs) and all(x is not None for x in srecs)
+        res_dir = out / "results"
+        if not complete:
+            return ReachResult(results=res_dir, rows=[], solved=solved, cached=cached, complete=False, backend=backend)
+        from ..section import load_section
+        rows = []
+        nst = len(spec.stages.values) if spec.stages is not None else 0
+        for i, ((st, d, slabel, o), rec) in enumerate(zip(datas, recs)):
+            sec = load_section(d) if not rec.get("status", "").startswith("error") else None
+            g = rec.get("governing") or {}
+            row = {"station": str(st.station), "station_value": station_value(st.station), "section": st.section,
+                   "title": (sec.spec.title if sec else ""), "status": rec.get("status", ""),
+                   "fs": g.get("fs"), "fs_mode": g.get("mode"), "exit_gradient_max": g.get("exit_gradient_max"),
+                   "failing_length_m": g.get("failing_length_m"),
+                   "fails_within_m_of_toe": g.get("fails_within_m_of_toe"),
+                   "seepage_m3_s_per_m": rec.get("seepage_m3_s_per_m"), "verdict": g.get("verdict", "not checked"),
+                   "why": g.get("why", rec.get("status", "")), "units": sec.units if sec else None,
+                   "slug": _slug(st.station), "rec": rec}
+            if nst:
+                row["stages"] = [(float(v), (sr.get("governing") or {})) for v, sr in
+                                 zip(spec.stages.values, srecs[i * nst:(i + 1) * nst])]
+            rows.append(row)
+        with atomic_dir(res_dir) as tmp:
+            (tmp / "stations").mkdir()
+            for row in rows:
+                rec = row["rec"]
+                if "report_html" in rec:
+                    sd = tmp / "stations" / row["slug"]
+                    sd.mkdir()
+                    (sd / "report.html").write_text(rec["report_html"], encoding="utf-8")
+                    (sd / "summary.json").write_text(rec["summary_json"] + "\n", encoding="utf-8")
+            _write_csv(tmp / "reach.csv", rows, spec)
+            html = build_reach_report(spec, label, rows, paper=paper, backend=backend, solved=solved, cached=cached)
+            (tmp / "report.html").write_text(html, encoding="utf-8")
+            from ..output import write_json
+            write_json(tmp / "reach.json", {"reach_file": label, "stations": [r["station"] for r in rows],
+                                            "solved_this_run": solved, "from_cache": cached, "backend": backend,
+                                            "caution": _caution()})
+            if pdf:
+                from .pdf import write_pdf
+                write_pdf(tmp / "report.html", tmp / "report.pdf")
+        kept = [{k: v for k, v in r.items() if k not in ("rec", "units")} for r in rows]
+        return ReachResult(results=res_dir, rows=kept,
+                           solved=solved, cached=cached, complete=True, backend=backend)
 
 
 def _caution():
@@ -252,25 +256,18 @@ def _caution():
 
 
 def _write_csv(path, rows, spec) -> None:
-    import csv
     cols = ["station", "station_value", "section", "status", "fs", "fs_mode", "exit_gradient_max", "failing_length_m",
             "fails_within_m_of_toe", "seepage_m3_s_per_m", "verdict", "why"]
     if spec.stages is not None:
         cols += [f"fs_at_stage_{v:g}" for v in spec.stages.values]
-    with open(path, "w", newline="") as fh:
-        w = csv.writer(fh)
-        w.writerow(cols)
-        for r in rows:
-            vals = [r.get(c) for c in cols[:12]]
-            if spec.stages is not None:
-                vals += [g.get("fs") for _, g in r["stages"]]
-            w.writerow(["" if v is None else (f"{v:.10g}" if isinstance(v, float) else _safe_cell(str(v)))
-                        for v in vals])
+    from ..csvfile import write_table          # seepfe's one CSV writer: formula-like text neutralised
 
-
-def _safe_cell(s: str) -> str:
-    """A text cell a spreadsheet will not read as a formula."""
-    return "'" + s if s[:1] in ("=", "+", "-", "@") and not re.fullmatch(r"[-+]?\d[\d+.]*", s) else s
+    def cells(r):
+        vals = [r.get(c) for c in cols[:12]]
+        if spec.stages is not None:
+            vals += [g.get("fs") for _, g in r["stages"]]
+        return vals
+    write_table(path, cols, (cells(r) for r in rows))
 
 
 def _figure_vs_station(rows, fs_required, allowable, title, unit):

@@ -41,13 +41,9 @@ class StageStudy:
 def _load(sweep) -> tuple[dict, str]:
     if isinstance(sweep, dict):
         return json.loads(json.dumps(sweep)), "<dict>"
+    from ..jsonin import read_json
     p = Path(sweep)
-    try:
-        return json.loads(p.read_text(encoding="utf-8-sig")), str(p)
-    except OSError as e_:
-        raise SeepfeError(f"{p}: cannot read the sweep file ({e_.strerror})") from None
-    except ValueError as e_:
-        raise SeepfeError(f"{p}: not JSON ({e_})") from None
+    return read_json(p, "sweep file"), str(p)      # size cap, UTF-8, duplicate keys, nesting checked
 
 
 def _stage_values(spec_vary, key, data, label):
@@ -102,6 +98,8 @@ def write_stage_study(section, sweep, out, *, stage: str | None = None, workers=
     if pdf:
         from .pdf import write_pdf
         write_pdf(res_dir / "report.html", res_dir / "report.pdf")
+    from ..output import add_to_manifest
+    add_to_manifest(res_dir, "report.html", *(["report.pdf"] if pdf else []))   # replaceable with results/
     first = _first_failure_text(target, col)
     fails = [r for r in rows if r["verdict"] == "fail"]
     summary = (f"stage study: {len(rows)} stages of {stage}, {len(fails)} fail; {first}")

@@ -2,7 +2,7 @@
 
 Folder layout (``out``)::
 
-    out/.seepfe-sweep      marker: this folder belongs to a sweep
+    out/.seepfe-sweep      marker: this folder belongs to a sweep; locked while a sweep runs into it
     out/cases/<hash>.json  one finished case each (the resumable cache; filled while the sweep runs)
     out/results/           the final files, written all at once when everything is solved:
         table.csv, sweep.json, vs_<key>.png|svg, profiles_<boundary>.png|svg,
@@ -11,10 +11,15 @@ Folder layout (``out``)::
 ``results/`` is replaced whole on success (never half-written); ``cases/`` is the one exception by
 design: it holds whatever finished, so an interrupted sweep loses nothing and a rerun solves only the
 cases whose resolved input changed.
+
+One sweep at a time: a second sweep into a folder that a running sweep holds is refused with one
+line (an advisory ``flock`` on the marker, released by the system when the process ends however it
+ends, so a killed sweep never leaves a stale lock).
 """
 
 from __future__ import annotations
 
+import contextlib
 import math
 import os
 import time
@@ -66,17 +71,57 @@ class SweepReport:
     files: list = field(default_factory=list)
     wall_s: float = 0.0
     warnings: list = field(default_factory=list)
+    failed: int = 0            # cases that ended in an error (counted once each)
+
+
+def check_sweep_folder(out: Path) -> None:
+    """One-line SeepfeError unless ``out`` can be a sweep folder: absent, empty, or a sweep folder whose
+    ``results/`` seepfe may replace and whose ``cases/`` is a folder; and writable.  Nothing is written."""
+    from ..output import _probe_writable, check_replaceable
+    out = Path(out)
+    if out.exists() or out.is_symlink():
+        if not out.is_dir():
+            raise SeepfeError(f"{out}: exists and is not a folder; choose another --out")
+        if any(out.iterdir()) and not (out / MARKER).is_file():
+            raise SeepfeError(f"{out}: folder exists, is not empty and is not a seepfe sweep folder; "
+                              "nothing was changed: choose another --out")
+        check_replaceable(out / "results", what="the sweep's results/ folder")
+        cases = out / "cases"
+        if cases.exists() and not cases.is_dir():
+            raise SeepfeError(f"{cases}: the case cache must be a folder, and this is a file; move it away")
+        _probe_writable(out, "the sweep folder")
+    else:
+        _probe_writable(out.absolute().parent, "the sweep folder")
 
 
 def _prepare_out(out: Path) -> None:
-    if out.exists():
-        if not out.is_dir():
-            raise SeepfeError(f"{out}: exists and is not a folder")
-        if any(out.iterdir()) and not (out / MARKER).exists():
-            raise SeepfeError(f"{out}: folder exists, is not empty and is not a seepfe sweep folder; "
-                              "choose another --out")
-    out.mkdir(parents=True, exist_ok=True)
-    (out / MARKER).write_text("seepfe sweep folder: cases/ is the resumable cache, results/ the final files\n")
+    check_sweep_folder(out)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+        if not (out / MARKER).is_file():
+            (out / MARKER).write_text("seepfe sweep folder: cases/ is the resumable cache, results/ the final files\n")
+    except OSError as e:
+        raise SeepfeError(f"{out}: cannot write the sweep folder ({e.strerror or e})") from None
+
+
+@contextlib.contextmanager
+def _locked(out: Path):
+    """Hold the sweep folder for this process: a second sweep into it is refused with one line."""
+    try:
+        import fcntl
+    except ImportError:                   # pragma: no cover - not POSIX: no lock
+        yield
+        return
+    fh = open(out / MARKER, "a")
+    try:
+        try:
+            fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            raise SeepfeError(f"{out}: another seepfe sweep is writing to this folder now; wait for it to finish "
+                              "or choose another --out") from None
+        yield
+    finally:
+        fh.close()                        # closing the file releases the lock
 
 
 def _row(index, varied, params: dict, columns: dict, rec: dict, h: str, fs_required: float,
@@ -145,13 +190,25 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
     fs_required = spec.criterion.fs if spec.criterion.fs is not None else max(crit.fs_heave, crit.fs_uplift)
     criteria = None if spec.criterion.fs is None else {"fs_heave": spec.criterion.fs, "fs_uplift": spec.criterion.fs}
     out = Path(out) if out is not None else None
-    if out is not None:
-        _prepare_out(out)
+    with contextlib.ExitStack() as stack:
+        if out is not None:
+            _prepare_out(out)
+            stack.enter_context(_locked(out))
+        return _run(sec=sec, data=data, label=label, spec=spec, slabel=slabel, sopts=sopts, points=points,
+                    fs_required=fs_required, criteria=criteria, out=out, workers=workers, scheduler=scheduler,
+                    progress=progress, max_solves=max_solves, plots=plots, runner=runner, t0=t0, fu=fu, su=su,
+                    sweep=sweep)
+
+
+def _run(*, sec, data, label, spec, slabel, sopts, points, fs_required, criteria, out, workers, scheduler, progress,
+         max_solves, plots, runner, t0, fu, su, sweep) -> SweepReport:
+    """The body of :func:`run_sweep`, with the sweep folder prepared and held."""
     own = runner is None
     if own:
         runner = Runner(cache_dir=(out / "cases") if out is not None else None, workers=workers,
                         scheduler=scheduler, max_solves=max_solves)
     rep = SweepReport(complete=True, backend=runner.backend, fs_required=fs_required)
+    failed: set = set()
 
     def payload(section_dict: dict) -> dict:
         if criteria is not None:       # the sweep's criterion is the cases' criteria: one verdict
@@ -175,7 +232,9 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
         offsets[stage] = (od + seen.get("n", 0), on + seen.get("n", 0))
         rep.solved += runner.solved
         rep.cached += runner.cached
-        rep.cases += len(set(case_hash(p) for p in payloads))
+        hashes = [case_hash(p) for p in payloads]
+        rep.cases += len(set(hashes))
+        failed.update(h for h, r in zip(hashes, recs) if r is not None and r.get("status", "").startswith("error"))
         return recs
 
     try:
@@ -275,9 +334,15 @@ def run_sweep(section, sweep, out=None, *, workers: Optional[int] = None, schedu
                              "confidence": fr.confidence, "failed_cases": errors}
     except Stopped:
         rep.complete = False
+    except BaseException:
+        if own:                            # an error or a signal: stop the workers now, not after their solves
+            runner.close(abort=True)
+            own = False
+        raise
     finally:
         if own:
             runner.close()
+    rep.failed = len(failed)
     rep.fs_method = ("least FS and verdict of each case by seepfe.analyse against the section's checks.criteria "
                      "(what seepfe solve prints for the same input)")
     rep.wall_s = time.perf_counter() - t0
@@ -317,7 +382,7 @@ def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts
                 results = [c for c in rep.columns if c.startswith(("flow_", "head_"))]
                 if any(not math.isnan(r["exit_gradient_max"]) for r in rep.table):
                     results += ["exit_gradient_max", "fs"]
-                for key, col in columns.items():
+                for key, col in (columns.items() if results else ()):      # nothing solved: no figure
                     rows = [r for r in rep.table if r["varied"] in (key, "grid")]
                     others = [c for k, c in columns.items() if k != key] if spec.mode == "grid" else []
                     files += report.plot_vs_parameter(tmp, key, col, rows, results, others, rep.fs_required, title)

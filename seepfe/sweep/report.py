@@ -6,7 +6,6 @@ Style: quiet grey grid, no top/right spines, the Okabe-Ito colour-blind-safe pal
 
 from __future__ import annotations
 
-import csv
 import math
 from pathlib import Path
 
@@ -31,12 +30,15 @@ def _fmt(v) -> str:
 
 
 def write_table(path: Path, columns: list[str], rows: list[dict]) -> None:
-    """Write rows (dicts) as CSV with the given header (names carry units)."""
-    with open(path, "w", newline="") as fh:
-        w = csv.writer(fh)
-        w.writerow(columns)
-        for r in rows:
-            w.writerow([_fmt(r.get(c, "")) for c in columns])
+    """Write rows (dicts) as CSV with the given header (names carry units), through seepfe's one CSV
+    writer (numbers stay numbers; text a spreadsheet would read as a formula is neutralised)."""
+    from ..csvfile import write_table as _write
+    _write(path, columns, ([r.get(c, "") for c in columns] for r in rows))
+
+
+def _tex(s) -> str:
+    """User text (titles, keys, names) shown literally by matplotlib: '$' escaped (never mathematics)."""
+    return str(s).replace("$", r"\$")
 
 
 def _figure(w=7.0, h=4.0, rows=1, cols=1):
@@ -114,7 +116,7 @@ def plot_vs_parameter(folder: Path, key: str, pcol: str, rows: list[dict], resul
             x = np.array([r[pcol] for r in rr], float)
             y = np.array([r.get(res, math.nan) for r in rr], float)
             y = np.where(np.isinf(y), np.nan, y)
-            lab = ", ".join(f"{_label(o).split(' (')[0]} = {t}" for o, t in zip(others, tag)) if others else None
+            lab = _tex(", ".join(f"{_label(o).split(' (')[0]} = {t}" for o, t in zip(others, tag))) if others else None
             if many:
                 ax.plot(x, y, color="#888888", lw=0.8, marker=".", ms=3)
             else:
@@ -125,13 +127,13 @@ def plot_vs_parameter(folder: Path, key: str, pcol: str, rows: list[dict], resul
                     ha="right", va="bottom", fontsize=7, color="#D55E00")
         if key.endswith((".k", ".kx", ".ky")) and np.all(np.array([r[pcol] for r in rows], float) > 0):
             ax.set_xscale("log")
-        ax.set_xlabel(_label(pcol), fontsize=8)
-        ax.set_ylabel(_label(res), fontsize=8)
+        ax.set_xlabel(_tex(_label(pcol)), fontsize=8)
+        ax.set_ylabel(_tex(_label(res)), fontsize=8)
     for ax in list(axs.flat)[n:]:
         ax.set_visible(False)
     if others and not many:
         fig.legend(loc="outside lower center", fontsize=7, frameon=False, ncols=min(3, len(fam)))
-    fig.suptitle(f"{title}\nresults against {key}", fontsize=9)
+    fig.suptitle(_tex(f"{title}\nresults against {key}"), fontsize=9)
     return _save(fig, folder / f"vs_{_safe(key)}")
 
 
@@ -170,11 +172,11 @@ def plot_profiles(folder: Path, boundary: str, cases: list[tuple[float, dict]], 
     axs[1, 0].set_ylim(0, min(max(fsmax, 1.2 * fs_required), 4 * fs_required))
     axs[0, 0].set_ylabel("exit gradient (m/m)", fontsize=8)
     axs[1, 0].set_ylabel("FS against heave/uplift (-)", fontsize=8)
-    axs[1, 0].set_xlabel(f"x along '{boundary}' (m)", fontsize=8)
+    axs[1, 0].set_xlabel(_tex(f"x along '{boundary}' (m)"), fontsize=8)
     cb = fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=axs[:, 0], shrink=0.8)
-    cb.set_label(colour_label, fontsize=8)
+    cb.set_label(_tex(colour_label), fontsize=8)
     cb.ax.tick_params(labelsize=7)
-    fig.suptitle(f"{title}\nexit gradient profiles at '{boundary}', {len(cases)} cases", fontsize=9)
+    fig.suptitle(_tex(f"{title}\nexit gradient profiles at '{boundary}', {len(cases)} cases"), fontsize=9)
     return _save(fig, folder / f"profiles_{_safe(boundary)}{stem}")
 
 
@@ -190,11 +192,11 @@ def plot_fragility(folder: Path, stage_label: str, stages: np.ndarray, probs: li
         ax.fill_between(stages, lo, hi, color=col, alpha=0.18, lw=0, step=None)
         ax.plot(stages, p, color=col, lw=1.6, marker="o", ms=3.5, label=lab)
     ax.set_ylim(-0.02, 1.02)
-    ax.set_xlabel(stage_label, fontsize=8)
+    ax.set_xlabel(_tex(stage_label), fontsize=8)
     ax.set_ylabel("probability (-)", fontsize=8)
     ax.legend(fontsize=8, frameon=False, loc="upper left",
               title=f"bands: {int(round(confidence * 100))}% {interval_name}, n = {n}", title_fontsize=7)
-    fig.suptitle(f"{title}\nfragility against river stage", fontsize=9)
+    fig.suptitle(_tex(f"{title}\nfragility against river stage"), fontsize=9)
     return _save(fig, folder / "fragility")
 
 
@@ -213,8 +215,8 @@ def plot_target(folder: Path, res: dict, xlabel: str, ylabel: str, bound: float)
         ax.axvline(res["value"], color=OKABE_ITO[0], lw=1)
         ax.text(res["value"], 0.02, f" {res['value']:.4g} (tolerance {res['tolerance']:g})",
                 transform=ax.get_xaxis_transform(), fontsize=7, color=OKABE_ITO[0])
-    ax.set_xlabel(xlabel, fontsize=8)
-    ax.set_ylabel(ylabel, fontsize=8)
+    ax.set_xlabel(_tex(xlabel), fontsize=8)
+    ax.set_ylabel(_tex(ylabel), fontsize=8)
     ax.legend(fontsize=7, frameon=False)
-    fig.suptitle(f"target '{res['name']}': {res['condition']}, {res['find']} {res['parameter']}", fontsize=9)
+    fig.suptitle(_tex(f"target '{res['name']}': {res['condition']}, {res['find']} {res['parameter']}"), fontsize=9)
     return _save(fig, folder / f"target_{_safe(res['name'])}")

@@ -19,16 +19,15 @@ schema's dimension markers (``seepfe.units``) or given by the entry's ``"unit"``
 from __future__ import annotations
 
 import itertools
-import json
 import math
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Annotated, Literal, Optional, Union
 
 import numpy as np
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from ..errors import SectionError
+from ..schema import Name, Text
 from ..units import SI, Dim, Units, parse_units
 from .values import get_value, unit_and_factor, unit_suffix, with_values
 
@@ -44,6 +43,8 @@ def _finite(v: float) -> float:
 
 Finite = Annotated[float, AfterValidator(_finite)]
 Length = Annotated[Finite, Dim("length")]
+#: default of the sweep key max_cases: most cases (solves) a sweep file may ask for
+MAX_CASES = 20_000
 _CFG = ConfigDict(extra="forbid", frozen=True)
 
 
@@ -57,7 +58,7 @@ class RangeSpec(BaseModel):
     step: Optional[Finite] = None
     count: Optional[Annotated[int, Field(ge=1, le=100_000)]] = None
     scale: Literal["linear", "log"] = "linear"
-    unit: Optional[str] = Field(None, description="unit of the values (inferred for known keys)")
+    unit: Optional[Name] = Field(None, description="unit of the values (inferred for known keys)")
 
     @model_validator(mode="after")
     def _check(self):
@@ -114,19 +115,19 @@ class TargetSpec(BaseModel):
     """Search one parameter for the smallest (or largest) value that meets a condition."""
 
     model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
-    name: Optional[str] = None
-    parameter: str
+    name: Optional[Name] = None
+    parameter: Name
     range: Annotated[list[Finite], Field(min_length=2, max_length=2)]
     find: Literal["smallest", "largest"] = "smallest"
-    quantity: Optional[str] = Field(None, description="result to bound: fs, exit_gradient_max, "
+    quantity: Optional[Name] = Field(None, description="result to bound: fs, exit_gradient_max, "
                                     "flow_<boundary>_m3_s_per_m, head_<point>_m, ...; default: fs when 'at_least' or "
                                     "'at_most' is given, else the verdict against the section's criteria")
     at_least: Optional[Finite] = None
     at_most: Optional[Finite] = None
     tolerance: Annotated[float, Field(gt=0)]
-    unit: Optional[str] = None
-    fixed: dict[str, Union[Finite, str, bool]] = Field(default_factory=dict,
-                                                       description="other values held for the search")
+    unit: Optional[Name] = None
+    fixed: dict[Name, Union[Finite, Text, bool]] = Field(default_factory=dict,
+                                                         description="other values held for the search")
 
     @model_validator(mode="after")
     def _check(self):
@@ -136,6 +137,10 @@ class TargetSpec(BaseModel):
             raise ValueError(f"'range' must be [low, high] with low < high, got {self.range}")
         if self.tolerance >= self.range[1] - self.range[0]:
             raise ValueError("'tolerance' must be smaller than the range")
+        far = max(abs(self.range[0]), abs(self.range[1]))
+        if self.tolerance < 16 * math.ulp(far):
+            raise ValueError(f"'tolerance' {self.tolerance:g} is finer than floating-point numbers can tell apart "
+                             f"near {far:g} (their spacing there is {math.ulp(far):.1e}); use a larger tolerance")
         return self
 
 
@@ -148,19 +153,20 @@ class LognormalSpec(BaseModel):
 
 class FragilitySpec(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True, populate_by_name=True)
-    stage: str = Field(description="key of the river stage (a parameter name or a dotted path)")
+    stage: Name = Field(description="key of the river stage (a parameter name or a dotted path)")
     stages: RangeSpec
-    conductivity: Annotated[dict[str, LognormalSpec], Field(min_length=1)]
+    conductivity: Annotated[dict[Name, LognormalSpec], Field(min_length=1)]
     correlation: Optional[list[list[Finite]]] = Field(
         None, description="correlation of ln k between the materials, in the order of 'conductivity'")
     samples: Annotated[int, Field(ge=1, le=100_000)] = 50
     sampling: Literal["latin_hypercube", "monte_carlo"] = "latin_hypercube"
-    seed: int = 0
-    quantity: str = Field("fs", description="result whose distribution is counted (default: fs, the least FS)")
+    seed: Annotated[int, Field(ge=0, le=2**64 - 1)] = Field(
+        0, description="seed of the random numbers (a whole number >= 0): the same seed gives the same samples")
+    quantity: Name = Field("fs", description="result whose distribution is counted (default: fs, the least FS)")
     criterion: Optional[Annotated[float, Field(gt=0)]] = Field(None, description="default: criterion.fs")
     confidence: Annotated[float, Field(gt=0, lt=1)] = 0.95
     interval: Literal["wilson", "clopper_pearson"] = "wilson"
-    fixed: dict[str, Union[Finite, str, bool]] = Field(default_factory=dict)
+    fixed: dict[Name, Union[Finite, Text, bool]] = Field(default_factory=dict)
 
     @model_validator(mode="after")
     def _check(self):
@@ -183,25 +189,55 @@ class SweepSpec(BaseModel):
     schema_: Optional[str] = Field(None, alias="$schema", description="address of the JSON Schema (ignored)")
     units: Optional[Union[str, dict[str, str]]] = Field(
         None, description="units of the sweep's numbers (default: the section file's units)")
-    title: str = ""
+    title: Text = ""
     mode: Literal["one_at_a_time", "grid"] = "one_at_a_time"
-    vary: dict[str, Union[list[Finite], RangeSpec]] = Field(default_factory=dict)
-    fixed: dict[str, Union[Finite, str, bool]] = Field(default_factory=dict,
+    vary: dict[Name, Union[list[Finite], RangeSpec]] = Field(default_factory=dict)
+    fixed: dict[Name, Union[Finite, Text, bool]] = Field(default_factory=dict,
                                                        description="values applied to every case")
     solve: SolveSpec = Field(default_factory=SolveSpec)
-    points: dict[str, Annotated[list[Length], Field(min_length=2, max_length=2)]] = Field(
+    points: dict[Name, Annotated[list[Length], Field(min_length=2, max_length=2)]] = Field(
         default_factory=dict, description="probe points [x, y], m: total head reported at each")
-    exit: Optional[list[str]] = Field(None, description="boundaries where exit gradients are checked "
+    exit: Optional[list[Name]] = Field(None, description="boundaries where exit gradients are checked "
                                                         "(default: every seepage face and drain)")
     criterion: CriterionSpec = Field(default_factory=CriterionSpec)
     targets: list[TargetSpec] = Field(default_factory=list)
     fragility: Optional[FragilitySpec] = None
+    max_cases: Annotated[int, Field(ge=1)] = Field(
+        MAX_CASES, description="most cases the table and the fragility may ask for together (each case is one "
+                               "solve); raise it to run a larger sweep on purpose")
 
     @model_validator(mode="after")
     def _something(self):
         if not self.vary and not self.targets and self.fragility is None:
             raise ValueError("nothing to do: give 'vary', 'targets' or 'fragility'")
+        parts, total = [], 0
+        if self.vary:
+            counts = [_count(v) for v in self.vary.values()]
+            n = math.prod(counts) if self.mode == "grid" else sum(counts)
+            joined = (" x " if self.mode == "grid" else " + ").join(map(str, counts))
+            parts.append(f"table: {joined}")
+            total += n
+        if self.fragility is not None:
+            n_st = _count(self.fragility.stages)
+            parts.append(f"fragility: {self.fragility.samples} samples x {n_st} stages")
+            total += self.fragility.samples * n_st
+        if total > self.max_cases:
+            shown = f"{total:,}" if total < 10**15 else "more than 10^15"
+            raise ValueError(f"the sweep asks for {shown} cases ({'; '.join(parts)}), more than max_cases = "
+                             f"{self.max_cases:,}; each case is one solve: raise \"max_cases\" in the sweep file "
+                             "if you mean it")
         return self
+
+
+def _count(v) -> int:
+    """Number of values of a 'vary' entry or a range, without making them."""
+    if isinstance(v, list):
+        return len(v)
+    if v.values is not None:
+        return len(v.values)
+    if v.count is not None:
+        return v.count
+    return int(math.floor((v.stop - v.start) / v.step + 1e-9)) + 1
 
 
 def _format(e: ValidationError, label: str) -> str:
@@ -218,18 +254,18 @@ def _format(e: ValidationError, label: str) -> str:
 
 def load_sweep(path_or_dict) -> tuple[SweepSpec, str]:
     """Read and validate a sweep file (path or dict); returns (spec, label)."""
+    from ..jsonin import check_tree, json_type, read_json
     if isinstance(path_or_dict, dict):
         data, label = path_or_dict, "<sweep>"
+        try:
+            check_tree(data)
+        except SectionError as e:
+            raise SectionError(f"{label}: {e}") from None
     else:
         label = str(path_or_dict)
-        try:
-            data = json.loads(Path(path_or_dict).read_text(encoding="utf-8-sig"))
-        except OSError as e:
-            raise SectionError(f"{label}: cannot read the file ({e.strerror or e})") from None
-        except json.JSONDecodeError as e:
-            raise SectionError(f"{label}: not valid JSON at line {e.lineno}, column {e.colno}: {e.msg}") from None
+        data = read_json(path_or_dict, "sweep file")
         if not isinstance(data, dict):
-            raise SectionError(f"{label}: the top level must be a JSON object {{...}}")
+            raise SectionError(f"{label}: the top level must be a JSON object {{...}}, got {json_type(data)}")
     try:
         spec = SweepSpec.model_validate(data)
     except ValidationError as e:

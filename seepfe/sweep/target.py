@@ -130,6 +130,11 @@ def search(t: TargetSpec, evaluate: Callable[[list[float]], list[Optional[dict]]
             warnings.append(f"not monotone between {a:g} and {b:g}: the outcome changes {len(changes)} times; "
                             "the first change is kept")
         j = changes[0]
+        if (pts[j], pts[j + 1]) == (a, b):
+            # the bracket is a few floating-point steps wide and cannot shrink: stop (never loop forever)
+            warnings.append(f"stopped at a bracket of {b - a:.3g} {t.parameter}: floating point cannot split it "
+                            f"further (tolerance {t.tolerance:g})")
+            break
         a, b = pts[j], pts[j + 1]
     value = b if t.find == "smallest" else a
     other = a if t.find == "smallest" else b
