@@ -213,8 +213,9 @@ def exit_gradient_figure(profile, title: str | None = None, required_fs: float |
         Lu = length_axis(last.xaxis, units)
         last.set_xlabel(f"distance from the {toe} ({Lu}), + away from the embankment")
         if any(np.any(np.nan_to_num(v, nan=0.0) > cap) for v in shown):
-            a2.text(0.005, 0.97, f"values above {cap:g} drawn at {cap:g}", transform=a2.transAxes, ha="left",
-                    va="top", fontsize=6.5, color=MUTED)
+            # above the panel's top edge, right-aligned: clear of the curves capped along that edge
+            a2.text(0.995, 1.01, f"values above {cap:g} drawn at {cap:g}", transform=a2.transAxes, ha="right",
+                    va="bottom", fontsize=6.5, color=MUTED)
         a2.set_xlim(d[0], d[-1])
         for a in panels:
             a.grid(axis="y", color="#e6e6e6", lw=0.5, zorder=-1)
