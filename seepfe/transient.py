@@ -463,6 +463,7 @@ def solve_transient(section, *, order: int | None = None, size: float | None = N
     tiny = 1e-9 * span
     steps = failed_steps = unconverged_steps = 0
     h_prev, dt_prev = None, 0.0
+    stopped = None
     t_loop = time.perf_counter()
     threads = contextlib.ExitStack()
     threads.enter_context(linsolve.one_thread())       # small dense work (GMRES) runs best on one BLAS thread
@@ -493,8 +494,9 @@ def solve_transient(section, *, order: int | None = None, size: float | None = N
             continue
         if not out.converged:
             unconverged_steps += 1
-            log.warning("transient step to t = %.6g s did not converge at the smallest step (%s): kept as it stands, "
-                        "marked not converged", t1, out.reason)
+            stopped = (t1, out.reason)
+            log.warning("transient step to t = %.6g s did not converge at the smallest step (%s): the run stops "
+                        "there; its best iterate is stored, marked not converged", t1, out.reason)
         steps += 1
         dt_used = t1 - t
         t = t1
@@ -505,12 +507,14 @@ def solve_transient(section, *, order: int | None = None, size: float | None = N
         st = _State(t=t, h=h.copy(), reactions=out.r, fixed=out.fixed, face_nodes=bc.face_nodes,
                     face_active=out.face.copy(), kr=out.kr, storage_rate=(out.S - S_old) / dt_used,
                     converged=out.converged)
-        stored = bool(np.any(np.abs(out_times - t) <= tiny))
+        stored = bool(np.any(np.abs(out_times - t) <= tiny)) or not out.converged
         tracker.record(st, out.S, dt=dt_used, iterations=out.iterations, store_result=stored)
         if stored:
             states.append(st)
             log.info("t = %.6g %s stored (%d steps, %d Newton iterations so far)", t / TIME_UNITS[sched.unit],
                      time_label(sched.unit), steps, stepper.stats["newton_iterations"])
+        if not out.converged:
+            break
         S_old = out.S
         # next step size, driven by the nonlinear iteration
         if np.any(np.abs(jumps - t) <= tiny):
@@ -552,9 +556,12 @@ def solve_transient(section, *, order: int | None = None, size: float | None = N
                     "steps": round(t_end - t_loop - tracker.time_s, 4), "history": round(tracker.time_s, 4),
                     "factor": round(stepper.stats["factor_s"], 4), "total": round(t_end - t_start, 4)},
     }
-    if unconverged_steps:
-        notes.append(f"{unconverged_steps} step(s) did not converge at the smallest step: the fields after them are "
-                     "marked not converged and must not be used")
+    if stopped is not None:
+        f = TIME_UNITS[sched.unit]
+        notes.append(f"the run stopped at t = {stopped[0] / f:.4g} {time_label(sched.unit)}: a step did not converge at "
+                     f"the smallest step ({stopped[1]}); the field there is the best iterate, marked not converged, "
+                     "and must not be used; later stored times are missing. To change: a smaller "
+                     "transient.first_step and max_step, a coarser local mesh, or a less abrupt hydrograph")
     log.info("transient: %d steps (%d retried), %d Newton iterations, %d factorisations, %.2f s", steps,
              failed_steps, info["newton_iterations"], info["factorizations"], t_end - t_start)
     return TransientResult(section=section, mesh=mesh, schedule=sched, history=H,
