@@ -68,11 +68,11 @@ MIN_STEP_FRACTION = 1e-3
 #: <= max(FLOW_TOL, round-off floor) <= FLOOR_MAX with the next correction (weighted by kr) below HTOL x head range
 RTOL, FLOW_TOL, FLOOR_MAX, HTOL, FLOOR_C = 1e-9, 1e-7, 1e-6, 1e-6, 4.0
 EPS = float(np.finfo(float).eps)
-#: GMRES with an earlier LU: relative tolerance, refresh the LU after more than KRYLOV_REFRESH iterations
-KRYLOV_RTOL, KRYLOV_REFRESH, KRYLOV_MAX = 1e-4, 15, 30
+#: GMRES with a kept preconditioner: relative tolerance, refresh it after more than KRYLOV_REFRESH iterations
+KRYLOV_RTOL, KRYLOV_REFRESH, KRYLOV_MAX = 1e-4, 6, 30
+#: a fresh symmetric preconditioner that needs more GMRES iterations than this gives way to the LU of the Jacobian
+SPD_GIVE_UP = 15
 LINE_SEARCH_CUTS = 6
-#: the preconditioner is the LDL^T of the symmetric part while at most this fraction of the elements is partly dry
-SPD_PC_DRY = 0.05
 #: factorisations of the linear (saturated) step kept at once, by (step, prescribed set)
 CACHE_SIZE = 8
 
@@ -596,6 +596,7 @@ class _Stepper:
         self.lin_cache: dict = {}
         self.keys_seen: set = set()
         self.pc = None
+        self.pc_kind = "spd"
         self._pc_solver = None
         self._upper = None
         self._fresh = False
@@ -646,12 +647,17 @@ class _Stepper:
         best = None
         reason = "iteration limit"
         it = 0
+        pending = None
         for it in range(1, NEWTON_MAX + 1):
             fixed, values = bcs.fixed_set(bc, face, y)
             h[fixed] = values
             free_mask = np.ones(n, bool)
             free_mask[fixed] = False
-            kr_e, dkr, A, S, C, r = self._eval(h, S_old, dt, bc.load)
+            if pending is not None:
+                kr_e, dkr, A, S, C, r = pending          # the accepted trial of the line search, evaluated there
+                pending = None
+            else:
+                kr_e, dkr, A, S, C, r = self._eval(h, S_old, dt, bc.load)
             new_face, release, catch = bcs.update_active(bc, face, r, h, y, self.htol)
             changed = bool(release.any() or catch.any())
             if changed and it < NEWTON_MAX - 2:
@@ -692,36 +698,36 @@ class _Stepper:
                     return self._out(h, face, r, S, kr_e, fixed, True, it - 1)
             self.stats["newton_iterations"] += 1
             dh = np.clip(dh, -dH, dH)
+            dh[fixed] = 0.0                               # prescribed heads stay exactly as set
             if linear:
                 h = h + dh
                 continue
             # backtracking line search on the 1-norm of the residual at the unknown nodes
             rn = float(np.abs(r[free_mask]).sum())
-            tstep, ok = 1.0, False
-            for _ in range(LINE_SEARCH_CUTS + 1):
-                ht = h + tstep * dh
-                rt = self._eval(ht, S_old, dt, bc.load, derivative=False)[5]
-                if float(np.abs(rt[free_mask]).sum()) <= (1.0 - 1e-4 * tstep) * rn:
-                    ok = True
-                    break
-                tstep *= 0.5
+            ok, ht, pending = self._line_search(h, dh, rn, S_old, dt, bc.load, free_mask)
             if not ok and not self._fresh:
                 self.pc = None                        # the direction of an old preconditioner failed: a fresh one
                 dh = np.clip(self._newton_direction(J, b, A, C, dt, free_mask), -dH, dH)
-                tstep = 1.0
-                for _ in range(LINE_SEARCH_CUTS + 1):
-                    ht = h + tstep * dh
-                    rt = self._eval(ht, S_old, dt, bc.load, derivative=False)[5]
-                    if float(np.abs(rt[free_mask]).sum()) <= (1.0 - 1e-4 * tstep) * rn:
-                        ok = True
-                        break
-                    tstep *= 0.5
+                dh[fixed] = 0.0
+                ok, ht, pending = self._line_search(h, dh, rn, S_old, dt, bc.load, free_mask)
             if not ok:
                 reason = "line search failed"
                 break
             h = ht
         rel, h, face, r, S, kr_e, fixed = best
         return self._out(h, face, r, S, kr_e, fixed, False, it, f"{reason}; relative residual {rel:.1e}")
+
+    def _line_search(self, h, dh, rn, S_old, dt, load, free_mask):
+        """Backtracking (halving) on the 1-norm of the residual at the unknown nodes (Armijo); returns (accepted,
+        heads, their evaluation) so the next Newton iteration starts from it."""
+        tstep = 1.0
+        for _ in range(LINE_SEARCH_CUTS + 1):
+            ht = h + tstep * dh
+            ev = self._eval(ht, S_old, dt, load)
+            if float(np.abs(ev[5][free_mask]).sum()) <= (1.0 - 1e-4 * tstep) * rn:
+                return True, ht, ev
+            tstep *= 0.5
+        return False, h, None
 
     def _newton_direction(self, J, b, A, C, dt, free_mask):
         """GMRES on the Newton system with a kept preconditioner (across iterations and steps while it serves):
@@ -739,6 +745,8 @@ class _Stepper:
             fresh = self._fresh
             if k > KRYLOV_REFRESH or not ok:
                 self.pc = None                       # refactorise (now, or at the next iteration)
+                if fresh and self.pc_kind == "spd" and (k > SPD_GIVE_UP or not ok):
+                    self.pc_kind = "lu"              # even a fresh symmetric one did not serve: the LU from now on
             if ok or fresh:
                 break
         if ok:
@@ -751,14 +759,14 @@ class _Stepper:
         return lu.solve(b)
 
     def _refresh_pc(self, J, A, C, dt, free_mask):
-        """A new preconditioner. Where at most SPD_PC_DRY of the elements are partly dry: the LDL^T (qdldl) of
-        K(h) + diag(C) / dt with the prescribed rows and columns replaced by identity ones (symmetric positive
-        definite, one pattern whatever the active set, so later steps reuse it and refactorise numerically only);
-        elsewhere (wide unsaturated zones, where the kr term of the Jacobian weighs) the LU of the Jacobian."""
+        """A new preconditioner: the LDL^T (qdldl) of K(h) + diag(C) / dt with the prescribed rows and columns replaced
+        by identity ones (symmetric positive definite, one pattern whatever the active set, so later steps reuse it
+        and refactorise numerically only); once a fresh one has not served (wide unsaturated zones, where the kr
+        term of the Jacobian weighs), the LU of the Jacobian for the rest of the run."""
         import qdldl
         t0 = time.perf_counter()
         sysm = self.sysm
-        if sysm.partly_dry > SPD_PC_DRY * self.mesh.n_elements:
+        if self.pc_kind == "lu":
             self.pc = _lu(J)
             self._fresh = True
             self.stats["factorizations"] += 1
