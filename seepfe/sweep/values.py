@@ -152,6 +152,8 @@ def infer_unit(data: dict, key: str, units=None) -> str | None:
     '-', 'deg'; None when its dimension cannot be told."""
     from ..units import parse_units
     dim = key_dimension(data, key)
+    if dim == "time":
+        return _time_unit(data, key)              # a hydrograph's time: its own time_unit
     if dim is None:
         params = data.get("parameters")
         if "." not in key and isinstance(params, dict) and isinstance(params.get(key), dict):
