@@ -253,3 +253,28 @@ def test_sweep_case_record_of_a_hydrograph():
     tr = rec["transient"]
     assert rec["status"] == "ok" and tr["least_fs_time_s"] > tr["crest_time_s"]
     assert tr["least_fs"] == pytest.approx(rec["governing"]["fs"]) and tr["time_unit"] == "day"
+
+
+def test_report_section_of_a_transient_run(run):
+    from seepfe.report_transient import insert_section, transient_section
+    frag = transient_section(run, figures=[])
+    assert "least FS over the flood" in frag and "The stored times" in frag and seepfe.CAUTION in frag
+    assert frag.count("<tr>") >= 1 + len(run.times)
+    doc = "<html><body><h2>Checks</h2><p>x</p><h2>Solver</h2></body></html>"
+    out = insert_section(doc, frag)
+    assert out.index("<h2>Checks</h2>") < out.index(frag) < out.index("<h2>Solver</h2>")
+
+
+@pytest.mark.slow
+def test_report_and_plot_of_a_hydrograph_section(tmp_path, capsys):
+    p = tmp_path / "flood.json"
+    p.write_text(json.dumps(_levee(size=8.0)))
+    assert main(["report", str(p), "--out", str(tmp_path / "r")]) == 0
+    html = (tmp_path / "r" / "report.html").read_text()
+    assert "Flood hydrograph: transient seepage" in html and html.count("data:image/png;base64,") >= 10
+    assert (tmp_path / "r" / "figures" / "flood_history.png").exists()
+    assert main(["plot", str(p), "--out", str(tmp_path / "p")]) == 0
+    assert (tmp_path / "p" / "flood_phreatic.png").exists()
+    g = json.loads((tmp_path / "p" / "figures.json").read_text())["governing"]
+    assert g == json.loads((tmp_path / "r" / "summary.json").read_text())["governing"]
+    capsys.readouterr()
