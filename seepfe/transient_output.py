@@ -11,6 +11,8 @@ phreatic line and flow lines, the input copy):
     fields.pvd                  the VTU files as one time series (ParaView and other VTK readers)
     pore_pressures/t_<time>.csv pore pressures on a grid over the riverside slope at each stored time, for a
                                 slope-stability analysis (rapid drawdown: the end of a falling limb)
+    phreatic_lines/t_<time>.csv the phreatic line (pressure head 0) at each stored time
+    checks/t_<time>_<b>.csv     the exit checks along each exit surface at each stored time
     flood_*.png|svg             the figures of :mod:`seepfe.plot.hydrograph`
 """
 
@@ -103,8 +105,8 @@ def write_transient(tres, folder, figures: bool = True) -> list[str]:
     cols["verdict_fails"] = [1.0 if r["verdict"] == "fail" else 0.0 if r["verdict"] == "pass" else np.nan for r in rows]
     write_csv(folder / "times.csv", display_columns({k: np.asarray(v, float) for k, v in cols.items()}, units))
     names.append("times.csv")
-    (folder / "fields").mkdir(exist_ok=True)
-    (folder / "pore_pressures").mkdir(exist_ok=True)
+    for sub in ("fields", "pore_pressures", "phreatic_lines", "checks"):
+        (folder / sub).mkdir(exist_ok=True)
     m = tres.mesh
     ctype = "triangle" if m.order == 1 else "triangle6"
     pts3 = np.column_stack([m.points, np.zeros(m.n_nodes)])
@@ -120,8 +122,14 @@ def write_transient(tres, folder, figures: bool = True) -> list[str]:
                     ).write(folder / "fields" / f"{tag}.vtu")
         entries.append((float(t), f"fields/{tag}.vtu"))
         write_csv(folder / "pore_pressures" / f"{tag}.csv", display_columns(pore_pressure_grid(tres, t), units))
+        line = r.phreatic_line()
+        write_csv(folder / "phreatic_lines" / f"{tag}.csv", display_columns({"x_m": line[:, 0], "y_m": line[:, 1]},
+                                                                            units))
+        for bname, ex in tres.analyse(t, hand=False).exits.items():
+            ex.to_csv(folder / "checks" / f"{tag}_{safe_name(bname)}.csv", units=units)
     (folder / "fields.pvd").write_text(_pvd(entries))
-    names += ["fields/ (VTU per stored time)", "fields.pvd", "pore_pressures/ (CSV per stored time)"]
+    names += ["fields/ (VTU per stored time)", "fields.pvd", "pore_pressures/, phreatic_lines/, checks/ (CSV per "
+              "stored time)"]
     if figures:
         from .plot.save import save_figure
         for name, _caption, fig in _figures(tres):

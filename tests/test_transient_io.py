@@ -177,6 +177,8 @@ def test_cli_writes_the_transient_folder(tmp_path, capsys):
     vtus = sorted((out / "fields").glob("*.vtu"))
     grids = sorted((out / "pore_pressures").glob("*.csv"))
     assert len(vtus) == len(grids) >= 9
+    assert len(sorted((out / "phreatic_lines").glob("*.csv"))) == len(vtus)
+    assert len(sorted((out / "checks").glob("*_landside.csv"))) == len(vtus)
     hdr = grids[-1].read_text().splitlines()[0]
     assert hdr == "x_m,y_m,total_head_m,pressure_head_m,pore_pressure_kPa"
     hist = (out / "history.csv").read_text().splitlines()
@@ -278,3 +280,13 @@ def test_report_and_plot_of_a_hydrograph_section(tmp_path, capsys):
     g = json.loads((tmp_path / "p" / "figures.json").read_text())["governing"]
     assert g == json.loads((tmp_path / "r" / "summary.json").read_text())["governing"]
     capsys.readouterr()
+
+
+def test_start_from_still_water():
+    res = seepfe.solve(_levee(size=10.0, hydrograph=[[0, 1.0], [0.5, 2.0]], output_times=[0.5]) |
+                       {"transient": {"initial_water_table": 0.5}})
+    assert "still water at 0.5" in res.solver_info["initial"]["initial_state"]
+    h0 = res.states[0].h
+    free = np.setdiff1d(np.arange(len(h0)), res.states[0].fixed)
+    assert np.allclose(h0[free], 0.5)
+    assert res.balance["largest_step_error"] < 1e-6
