@@ -273,8 +273,10 @@ def test_report_and_plot_of_a_hydrograph_section(tmp_path, capsys):
     p.write_text(json.dumps(_levee(size=8.0)))
     assert main(["report", str(p), "--out", str(tmp_path / "r")]) == 0
     html = (tmp_path / "r" / "report.html").read_text()
-    assert "Flood hydrograph: transient seepage" in html and html.count("data:image/png;base64,") >= 10
-    assert (tmp_path / "r" / "figures" / "flood_history.png").exists()
+    assert "4. The flood hydrograph: transient seepage" in html and "Transient two-dimensional flow" in html
+    assert html.count("data:image/svg+xml;base64,") >= 10
+    assert html.index("3. Inputs") < html.index("4. The flood hydrograph") < html.index("Appendix A")
+    assert (tmp_path / "r" / "figures" / "flood_history.svg").exists()
     assert main(["plot", str(p), "--out", str(tmp_path / "p")]) == 0
     assert (tmp_path / "p" / "flood_phreatic.png").exists()
     g = json.loads((tmp_path / "p" / "figures.json").read_text())["governing"]
