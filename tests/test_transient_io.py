@@ -220,6 +220,7 @@ def test_a_run_that_does_not_converge_is_marked_and_never_passes(monkeypatch, tm
     assert "did not converge" in capsys.readouterr().out
 
 
+@pytest.mark.slow
 def test_figures_of_a_transient_run(run, tmp_path):
     from seepfe.plot.hydrograph import transient_figures
     from seepfe.plot.save import save_figure
