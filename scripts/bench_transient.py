@@ -4,8 +4,8 @@ equivalents measured in the same process.
     python scripts/bench_transient.py            # sections/levee_blanket.json (about 2e4 P2 nodes)
     python scripts/bench_transient.py --repeat 1 --section sections/levee_flood.json
 
-The reference is ``seepfe.solve`` of the steady problem at the crest stage on the same mesh (best of --repeat runs,
-meshing excluded); the transient run uses that mesh too, with 100 equal steps (first_step = max_step = duration /
+The reference is ``seepfe.solve`` of the steady problem at the crest stage on the same mesh (meshing excluded); the
+transient runs use that mesh too (every time is the best of --repeat runs), with 100 equal steps (first_step = max_step = duration /
 100, the hydrograph's points on multiples of the step). Three transient runs:
 
 * unconfined, time history of the exit checks at every step (what ``seepfe solve`` does);
@@ -35,7 +35,7 @@ FLOOD = [[0.0, 2.0], [2.8, 2.6], [5.6, 4.5], [7.0, 5.0], [8.4, 4.3], [11.2, 2.2]
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--section", default=str(ROOT / "sections" / "levee_blanket.json"))
-    ap.add_argument("--repeat", type=int, default=2, help="steady reference: best of this many runs")
+    ap.add_argument("--repeat", type=int, default=2, help="best of this many runs (reference and transient runs)")
     ap.add_argument("--steps", type=int, default=100)
     args = ap.parse_args(argv)
     import numpy as np
@@ -64,9 +64,13 @@ def main(argv=None) -> int:
     rows = []
 
     def bench(label, s, history):
-        t0 = time.perf_counter()
-        res = solve_transient(s, mesh=mesh, history=history)
-        dt = time.perf_counter() - t0
+        best = None
+        for _ in range(max(1, args.repeat)):          # best of --repeat, as the reference
+            t0 = time.perf_counter()
+            res = solve_transient(s, mesh=mesh, history=history)
+            dt = time.perf_counter() - t0
+            best = dt if best is None else min(best, dt)
+        dt = best
         i = res.solver_info
         rows.append([label, f"{dt:.2f}", f"{dt / t_ref:.1f}", str(i["steps"]), str(i["newton_iterations"]),
                      str(i["krylov_iterations"]), str(i["factorizations"]),
