@@ -467,66 +467,68 @@ def solve_transient(section, *, order: int | None = None, size: float | None = N
     t_loop = time.perf_counter()
     threads = contextlib.ExitStack()
     threads.enter_context(linsolve.one_thread())       # small dense work (GMRES) runs best on one BLAS thread
-    while t < sched.end - tiny:
-        nxt = marks[marks > t + tiny]
-        mark = float(nxt[0]) if len(nxt) else sched.end
-        dt = min(dt, sched.max_step)
-        rem = mark - t
-        if rem <= dt * (1 + 1e-9):
-            dt = rem
-        elif rem < 2 * dt:
-            dt = 0.5 * rem
-        t1 = t + dt if abs(t + dt - mark) > tiny else mark
-        sec1 = section_at(section, t1, hyd)
-        bc = bcs.conditions(sec1, mesh)
-        face = np.where(active[bc.face_nodes], True, False)
-        # predictor: the heads extrapolated linearly from the last two steps (not across a jump of a stage)
-        guess = None
-        if h_prev is not None and dt_prev > 0:
-            guess = h + ((t1 - t) / dt_prev) * (h - h_prev)
-        out = stepper.step(h, S_old, bc, face, t1 - t, guess)
-        if not out.converged and guess is not None:
-            out = stepper.step(h, S_old, bc, face, t1 - t)
-        if not out.converged and (t1 - t) > MIN_STEP_FRACTION * sched.first_step:
-            failed_steps += 1
-            dt = max(CUT * (t1 - t), MIN_STEP_FRACTION * sched.first_step * 0.999)
-            log.info("transient step to t = %.6g s did not converge (%s); retried with dt = %.3g s", t1, out.reason, dt)
-            continue
-        if not out.converged:
-            unconverged_steps += 1
-            stopped = (t1, out.reason)
-            log.warning("transient step to t = %.6g s did not converge at the smallest step (%s): the run stops "
-                        "there; its best iterate is stored, marked not converged", t1, out.reason)
-        steps += 1
-        dt_used = t1 - t
-        t = t1
-        h_prev, dt_prev = h, dt_used
-        h = out.h
-        active[:] = False
-        active[bc.face_nodes[out.face]] = True
-        st = _State(t=t, h=h.copy(), reactions=out.r, fixed=out.fixed, face_nodes=bc.face_nodes,
-                    face_active=out.face.copy(), kr=out.kr, storage_rate=(out.S - S_old) / dt_used,
-                    converged=out.converged)
-        stored = bool(np.any(np.abs(out_times - t) <= tiny)) or not out.converged
-        tracker.record(st, out.S, dt=dt_used, iterations=out.iterations, store_result=stored)
-        if stored:
-            states.append(st)
-            log.info("t = %.6g %s stored (%d steps, %d Newton iterations so far)", t / TIME_UNITS[sched.unit],
-                     time_label(sched.unit), steps, stepper.stats["newton_iterations"])
-        if not out.converged:
-            break
-        S_old = out.S
-        # next step size, driven by the nonlinear iteration
-        if np.any(np.abs(jumps - t) <= tiny):
-            dt = sched.first_step                 # a stage jumps now: start small again
-            h_prev = None
-        elif out.iterations <= GROW_BELOW:
-            dt = dt_used * GROW
-        elif out.iterations >= SHRINK_ABOVE:
-            dt = dt_used * SHRINK
-        else:
-            dt = dt_used
-    threads.close()
+    try:
+        while t < sched.end - tiny:
+            nxt = marks[marks > t + tiny]
+            mark = float(nxt[0]) if len(nxt) else sched.end
+            dt = min(dt, sched.max_step)
+            rem = mark - t
+            if rem <= dt * (1 + 1e-9):
+                dt = rem
+            elif rem < 2 * dt:
+                dt = 0.5 * rem
+            t1 = t + dt if abs(t + dt - mark) > tiny else mark
+            sec1 = section_at(section, t1, hyd)
+            bc = bcs.conditions(sec1, mesh)
+            face = np.where(active[bc.face_nodes], True, False)
+            # predictor: the heads extrapolated linearly from the last two steps (not across a jump of a stage)
+            guess = None
+            if h_prev is not None and dt_prev > 0:
+                guess = h + ((t1 - t) / dt_prev) * (h - h_prev)
+            out = stepper.step(h, S_old, bc, face, t1 - t, guess)
+            if not out.converged and guess is not None:
+                out = stepper.step(h, S_old, bc, face, t1 - t)
+            if not out.converged and (t1 - t) > MIN_STEP_FRACTION * sched.first_step:
+                failed_steps += 1
+                dt = max(CUT * (t1 - t), MIN_STEP_FRACTION * sched.first_step * 0.999)
+                log.info("transient step to t = %.6g s did not converge (%s); retried with dt = %.3g s", t1, out.reason, dt)
+                continue
+            if not out.converged:
+                unconverged_steps += 1
+                stopped = (t1, out.reason)
+                log.warning("transient step to t = %.6g s did not converge at the smallest step (%s): the run stops "
+                            "there; its best iterate is stored, marked not converged", t1, out.reason)
+            steps += 1
+            dt_used = t1 - t
+            t = t1
+            h_prev, dt_prev = h, dt_used
+            h = out.h
+            active[:] = False
+            active[bc.face_nodes[out.face]] = True
+            st = _State(t=t, h=h.copy(), reactions=out.r, fixed=out.fixed, face_nodes=bc.face_nodes,
+                        face_active=out.face.copy(), kr=out.kr, storage_rate=(out.S - S_old) / dt_used,
+                        converged=out.converged)
+            stored = bool(np.any(np.abs(out_times - t) <= tiny)) or not out.converged
+            tracker.record(st, out.S, dt=dt_used, iterations=out.iterations, store_result=stored)
+            if stored:
+                states.append(st)
+                log.info("t = %.6g %s stored (%d steps, %d Newton iterations so far)", t / TIME_UNITS[sched.unit],
+                         time_label(sched.unit), steps, stepper.stats["newton_iterations"])
+            if not out.converged:
+                break
+            S_old = out.S
+            # next step size, driven by the nonlinear iteration
+            if np.any(np.abs(jumps - t) <= tiny):
+                dt = sched.first_step                 # a stage jumps now: start small again
+                h_prev = None
+            elif out.iterations <= GROW_BELOW:
+                dt = dt_used * GROW
+            elif out.iterations >= SHRINK_ABOVE:
+                dt = dt_used * SHRINK
+            else:
+                dt = dt_used
+    finally:
+        threads.close()
     t_end = time.perf_counter()
     # the moment of the least FS is stored too
     worst = tracker.worst_state
@@ -785,10 +787,10 @@ class _Stepper:
         v[sysm.diag[fixed]] = 1.0
         U = sp.csc_matrix((v[perm], ind, ptr), shape=(self.n, self.n))
         try:
-            if self._pc_solver is None:
+            if self._pc_solver is None or not hasattr(self._pc_solver, "update"):
                 self._pc_solver = qdldl.Solver(U, upper=True)
             else:
-                self._pc_solver.update(U, upper=True)
+                self._pc_solver.update(U, upper=True)       # numeric refactorisation, same pattern
             self.pc = self._pc_solver
         except (ValueError, RuntimeError):          # not positive definite after all: the LU of it instead
             self._pc_solver = None
