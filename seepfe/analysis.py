@@ -256,7 +256,8 @@ class Analysis:
                 "heads_m": {k: _json_float(v) for k, v in zip(pts, heads)},
                 "governing": d["governing"], "hand_methods": d["hand_methods"], "exit": prof,
                 "warnings": list(warnings or []), "nodes": int(r.mesh.n_nodes),
-                "balance_relative_error": _json_float(r.balance["relative_error"]), "time_s": float(time_s)}
+                "balance_relative_error": _json_float(r.balance["relative_error"]), "time_s": float(time_s),
+                "transient": None}                     # a case under a hydrograph: its moments (sweep/case.py)
 
     def text(self, units=None) -> str:
         """What the command line prints: flows, seepage faces, remedies, the checks, the verdict and the

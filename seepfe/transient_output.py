@@ -81,8 +81,9 @@ def _pvd(entries: list[tuple[float, str]]) -> str:
             f"  <Collection>\n{rows}\n  </Collection>\n</VTKFile>\n")
 
 
-def write_transient(tres, folder, figures: bool = True) -> list[str]:
-    """Write the files of a transient run (module docstring) into an existing folder; return the names written."""
+def write_transient(tres, folder, figures: bool = True, dxf: bool = False) -> list[str]:
+    """Write the files of a transient run (module docstring) into an existing folder; return the names written
+    (``dxf``: the lines of the governing moment as DXF too, as ``seepfe solve --dxf``)."""
     import meshio
     from .analysis import analyse
     from .output import safe_name, write_analysis, write_csv
@@ -91,7 +92,7 @@ def write_transient(tres, folder, figures: bool = True) -> list[str]:
     sec = tres.section
     units = sec.units
     a = analyse(tres)                          # the governing moment
-    names = write_analysis(a, folder)
+    names = write_analysis(a, folder, dxf=dxf)
     write_csv(folder / "history.csv", display_columns(tres.history_columns(), units))
     names.append("history.csv")
     rows = stored_rows(tres)

@@ -52,7 +52,7 @@ def run_transient(args, res) -> int:
     from ..output import atomic_dir
     from ..transient_output import transient_text, write_transient
     with atomic_dir(args.out) as tmp:
-        written = write_transient(res, tmp, figures=getattr(args, "figures", True))
+        written = write_transient(res, tmp, figures=getattr(args, "figures", True), dxf=getattr(args, "dxf", False))
     print(transient_text(res))
     a = analyse(res)
     t = a.result.time_s / TIME_UNITS[res.time_unit]
