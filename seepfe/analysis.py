@@ -46,14 +46,16 @@ from .text import one_line, table
 
 __all__ = ["analyse", "Analysis", "CAUTION"]
 
-def analyse(result, boundaries: list[str] | None = None) -> "Analysis":
+def analyse(result, boundaries: list[str] | None = None, hand: bool = True) -> "Analysis":
     """Post-process a solve: exit checks, governing values and verdict, hand methods, phreatic surface.
 
     Parameters
     ----------
-    result : seepfe.Result
+    result : seepfe.Result (a :class:`seepfe.transient.TransientResult` is analysed at the moment of its least FS)
     boundaries : exit surfaces to check (default: the section's ``checks.boundaries``, else every
         seepage face that is ground, plus the head boundaries at the lowest head when heads differ).
+    hand : apply the hand methods beside the FE (False: the exit checks and verdict only, as the time history
+        of a transient solve reads them at every step).
 
     Returns
     -------
@@ -64,6 +66,9 @@ def analyse(result, boundaries: list[str] | None = None) -> "Analysis":
     SectionError
         A boundary named that the section does not have.
     """
+    if getattr(result, "is_transient", False):
+        # a transient run (issue 14): the moment of its least FS governs (any other moment: result.analyse(t))
+        return result.analyse(result.governing_time, boundaries=boundaries, hand=hand)
     sec = result.section
     if boundaries is None:
         names = default_boundaries(sec)
@@ -81,7 +86,7 @@ def analyse(result, boundaries: list[str] | None = None) -> "Analysis":
     import logging
     logging.getLogger("seepfe").info("checks along %s", ", ".join(repr(n) for n in names) or "no exit surface")
     exits = {n: exit_gradients(result, n) for n in names}
-    hand, cutoffs = hand_methods(result, exits)
+    hand, cutoffs = hand_methods(result, exits) if hand else ([], [])
     return Analysis(result=result, boundaries=names, rule=rule, exits=exits, hand=hand, cutoffs=cutoffs)
 
 
@@ -152,6 +157,9 @@ class Analysis:
             out.append("no exit surface is checked (no seepage face that is ground; name one in checks.boundaries)")
         if not self.result.solver_info.get("converged", True):
             out.append("the solve did not converge: the field is the best iterate and must not be used")
+        if callable(getattr(self.result, "transient_summary", None)) and self.hand:
+            out.append("a moment of a transient solve: the hand methods are steady closed forms at this moment's "
+                       "water levels, not the transient answer")
         return out
 
     @cached_property
@@ -227,6 +235,8 @@ class Analysis:
             d["accuracy"] = self.accuracy
         from .export import provenance
         d["provenance"] = provenance()
+        if callable(getattr(r, "transient_summary", None)):
+            d["transient"] = r.transient_summary()          # a moment of a transient run (issue 14)
         return _finite_or_none(_plain(d))
 
     def record(self, points: dict | None = None, warnings: list | None = None, time_s: float = 0.0) -> dict:
@@ -246,7 +256,8 @@ class Analysis:
                 "heads_m": {k: _json_float(v) for k, v in zip(pts, heads)},
                 "governing": d["governing"], "hand_methods": d["hand_methods"], "exit": prof,
                 "warnings": list(warnings or []), "nodes": int(r.mesh.n_nodes),
-                "balance_relative_error": _json_float(r.balance["relative_error"]), "time_s": float(time_s)}
+                "balance_relative_error": _json_float(r.balance["relative_error"]), "time_s": float(time_s),
+                "transient": None}                     # a case under a hydrograph: its moments (sweep/case.py)
 
     def text(self, units=None) -> str:
         """What the command line prints: flows, seepage faces, remedies, the checks, the verdict and the

@@ -188,6 +188,10 @@ class Summary(BaseModel):
         None, description="versions of seepfe, gmsh, numpy, scipy and Python that wrote the file (the same file "
                           "meshes identically only within one gmsh version)")
     caution: str
+    transient: Optional[dict[str, Any]] = Field(
+        None, description="a moment of a transient solve under a hydrograph (docs/transient.md): its time (s) and "
+                          "stages (m), and the run's stored times, least FS over time and when, peak toe head, "
+                          "seepage volumes and water balance")
 
 
 class ExitProfile(BaseModel):
@@ -211,6 +215,9 @@ class CaseRecord(BaseModel):
     nodes: int = 0
     balance_relative_error: _num = None
     time_s: float = 0.0
+    transient: Optional[dict[str, Any]] = Field(
+        None, description="a case under a hydrograph: when the least FS occurs (s), the stages then (m), its lag "
+                          "behind the crest (s), the peak toe head (m) and the seepage volumes (m3 per m)")
 
 
 def summary_schema() -> dict:

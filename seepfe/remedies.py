@@ -337,7 +337,7 @@ def _landside_sign(spec: SectionSpec, geo: _Geo, r) -> float:
     heads = [b for b in spec.boundaries if b.kind == "head"]
     if not heads:
         raise SectionError("give 'landside': \"left\" or \"right\" (no head boundary to tell the river side)")
-    river = max(heads, key=lambda b: b.head)
+    river = max(heads, key=lambda b: b.head if b.head is not None else max(p[1] for p in b.hydrograph))
     xr = float(np.mean(np.asarray(river.polyline)[:, 0]))
     emb = _embankment(spec, geo, r, required=False)
     xc = emb.centroid.x if emb is not None else 0.5 * (geo.bounds[0] + geo.bounds[2])

@@ -17,11 +17,11 @@ from typing import Annotated, Literal, Optional
 
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validator
 
-from .units import K_RANGE, Dim
+from .units import K_RANGE, Dim, Dims
 
 __all__ = ["Name", "Text", "ProjectSpec", "MaterialSpec", "ZoneSpec", "BoundarySpec", "BarrierSpec", "RefineSpec",
-           "MeshSpec", "WaterSpec", "SectionSpec", "K_RANGE", "Length", "PositiveLength", "Point", "Conductivity",
-           "Flux", "UnitWeight"]
+           "MeshSpec", "WaterSpec", "SectionSpec", "TransientSpec", "TIME_UNITS", "K_RANGE", "Length", "PositiveLength",
+           "Point", "Conductivity", "Flux", "UnitWeight"]
 
 
 def _finite(v: float) -> float:
@@ -78,6 +78,13 @@ UnitWeight = Annotated[Positive, Dim("unit_weight")]
 PerLength = Annotated[Positive, Dim("per_length")]
 Conductivity = Annotated[float, AfterValidator(_conductivity), Field(json_schema_extra={"exclusiveMinimum": 0}),
                          Dim("conductivity", k_range=True)]
+#: a time in the unit its object names ("time_unit": hour or day); the file's "units" do not convert it
+Time = Annotated[Finite, Dim("time")]
+PositiveTime = Annotated[Positive, Dim("time")]
+#: a hydrograph point [time, total head]: time in the boundary's time_unit, head a length
+HydroPoint = Annotated[list[Finite], Field(min_length=2, max_length=2), Dims(("time", "length"))]
+#: seconds per time unit of a hydrograph (exact)
+TIME_UNITS = {"hour": 3600.0, "day": 86400.0}
 
 _CFG = ConfigDict(extra="forbid", strict=True, frozen=True)
 
@@ -91,6 +98,18 @@ class UnsaturatedSpec(BaseModel):
         description="van Genuchten n (> 1)")
     kr_min: Annotated[float, Field(gt=0.0, lt=1.0)] = Field(
         1e-6, description="floor of the relative conductivity (-), keeps the system regular")
+    theta_s: Optional[Annotated[float, Field(gt=0.0, le=1.0)]] = Field(
+        None, description="saturated volumetric water content (-), for the moisture capacity of transient solves "
+                          "(default: by soil type, docs/transient.md)")
+    theta_r: Optional[Annotated[float, Field(ge=0.0, lt=1.0)]] = Field(
+        None, description="residual volumetric water content (-), for the moisture capacity of transient solves "
+                          "(default: by soil type, docs/transient.md)")
+
+    @model_validator(mode="after")
+    def _contents(self):
+        if self.theta_s is not None and self.theta_r is not None and not self.theta_r < self.theta_s:
+            raise ValueError(f"'theta_r' ({self.theta_r:g}) must be below 'theta_s' ({self.theta_s:g})")
+        return self
 
 
 class MaterialSpec(BaseModel):
@@ -113,6 +132,9 @@ class MaterialSpec(BaseModel):
         None, description="soil class of Lane's (1935) weighted-creep table, to compare a creep ratio with "
                           "its safe value (docs/checks.md)")
     unsaturated: Optional[UnsaturatedSpec] = None
+    specific_storage: Optional[PerLength] = Field(
+        None, description="specific storage Ss, 1/m: water released from a unit volume of saturated soil per unit "
+                          "fall of pressure head (transient solves; default by soil type, docs/transient.md)")
 
     @model_validator(mode="after")
     def _one_conductivity(self):
@@ -151,24 +173,67 @@ class BoundarySpec(BaseModel):
     flux: Optional[Flux] = Field(None, description="normal inflow, m/s (positive into the section)")
     drain: bool = Field(False, description="a drain at atmospheric pressure: takes water out, never in")
     dry_above_level: bool = Field(
-        False, description="with 'head': the part of the polyline above the water level (y > head) is dry "
-                           "and acts as a seepage face instead (for river-stage sweeps on a fixed slope)")
+        False, description="with 'head' or 'hydrograph': the part of the polyline above the water level (y > head) "
+                           "is dry and acts as a seepage face instead (for river-stage sweeps on a fixed slope, and "
+                           "for a river slope under a hydrograph)")
+    hydrograph: Optional[Annotated[list[HydroPoint], Field(min_length=2)]] = Field(
+        None, description="in place of 'head': total head against time, [[time, head], ...], linear between the "
+                          "points (a repeated time is a step); time in 'time_unit', head a length (transient solve, "
+                          "docs/transient.md)")
+    time_unit: Optional[Literal["hour", "day"]] = Field(
+        None, description="unit of the hydrograph's times, its 'output_times' and 'duration'")
+    output_times: Optional[Annotated[list[Time], Field(min_length=1)]] = Field(
+        None, description="times at which the whole field is stored, in 'time_unit' (default: the hydrograph's own "
+                          "points and its crest)")
+    peak: Optional[Length] = Field(
+        None, description="stage at the crest: the rise of the hydrograph above its first stage is scaled so that "
+                          "its highest point is this head (for sweeps of the flood peak)")
+    duration: Optional[PositiveTime] = Field(
+        None, description="length of the hydrograph in 'time_unit': its times and output_times are stretched from its "
+                          "first point so that it lasts this long (for sweeps of the flood duration)")
 
     @model_validator(mode="after")
     def _one_kind(self):
-        kinds = [k for k, on in (("head", self.head is not None), ("seepage_face", self.seepage_face),
+        if self.head is not None and self.hydrograph is not None:
+            raise ValueError("give 'head' (steady) or 'hydrograph' (transient), not both")
+        kinds = [k for k, on in (("head", self.head is not None or self.hydrograph is not None),
+                                 ("seepage_face", self.seepage_face),
                                  ("flux", self.flux is not None), ("drain", self.drain)) if on]
         if len(kinds) != 1:
             if not kinds:
-                raise ValueError("give one of 'head', 'seepage_face', 'flux' or 'drain'")
+                raise ValueError("give one of 'head', 'hydrograph', 'seepage_face', 'flux' or 'drain'")
             raise ValueError(f"give only one of {', '.join(repr(k) for k in kinds)}")
-        if self.dry_above_level and self.head is None:
-            raise ValueError("'dry_above_level' goes with 'head'")
+        if self.dry_above_level and self.kind != "head":
+            raise ValueError("'dry_above_level' goes with 'head' or 'hydrograph'")
+        if self.hydrograph is None:
+            for key in ("time_unit", "output_times", "peak", "duration"):
+                if getattr(self, key) is not None:
+                    raise ValueError(f"'{key}' goes with 'hydrograph'")
+            return self
+        if self.time_unit is None:
+            raise ValueError("'hydrograph' needs 'time_unit': \"hour\" or \"day\" (the unit of its times)")
+        t = [p[0] for p in self.hydrograph]
+        for i in range(1, len(t)):
+            if t[i] < t[i - 1]:
+                raise ValueError(f"hydrograph[{i}]: time {t[i]:g} {self.time_unit} comes before the previous point's "
+                                 f"{t[i - 1]:g}: times must not decrease")
+            if i >= 2 and t[i] == t[i - 1] == t[i - 2]:
+                raise ValueError(f"hydrograph[{i}]: three points at time {t[i]:g} {self.time_unit}: a step takes two")
+        if not t[-1] > t[0]:
+            raise ValueError("hydrograph: the last time must be later than the first")
+        for v in self.output_times or ():
+            if not t[0] <= v:
+                raise ValueError(f"output_times: {v:g} {self.time_unit} is before the hydrograph starts ({t[0]:g})")
+        if self.peak is not None:
+            h = [p[1] for p in self.hydrograph]
+            if not max(h) > h[0]:
+                raise ValueError("'peak' scales the rise of the hydrograph above its first stage, and this "
+                                 "hydrograph never rises above it")
         return self
 
     @property
     def kind(self) -> str:
-        if self.head is not None:
+        if self.head is not None or self.hydrograph is not None:
             return "head"
         if self.flux is not None:
             return "flux"
@@ -317,6 +382,45 @@ class ProjectSpec(BaseModel):
                           "dam, reservoir, upstream or downstream, else 'levee'")
 
 
+class GridSpec(BaseModel):
+    """A rectangular grid of points (m) for pore pressures written for a stability analysis."""
+
+    model_config = _CFG
+    x: Annotated[list[Length], Field(min_length=2, max_length=2)] = Field(description="[x_min, x_max], m")
+    y: Annotated[list[Length], Field(min_length=2, max_length=2)] = Field(description="[y_min, y_max], m")
+    spacing: PositiveLength = Field(description="distance between grid points, m")
+
+    @model_validator(mode="after")
+    def _order(self):
+        for k in ("x", "y"):
+            lo, hi = getattr(self, k)
+            if not hi > lo:
+                raise ValueError(f"'{k}': [{lo:g}, {hi:g}] must run from the smaller to the larger value")
+        n = ((self.x[1] - self.x[0]) / self.spacing + 1) * ((self.y[1] - self.y[0]) / self.spacing + 1)
+        if n > 2_000_000:
+            raise ValueError(f"about {n:.3g} grid points; use a larger 'spacing' (at most 2e6 points)")
+        return self
+
+
+class TransientSpec(BaseModel):
+    """Settings of the transient solve of a section with a hydrograph (docs/transient.md). Every key is optional."""
+
+    model_config = _CFG
+    time_unit: Optional[Literal["hour", "day"]] = Field(
+        None, description="unit of 'end', 'max_step' and 'first_step' (default: the first hydrograph's)")
+    end: Optional[Time] = Field(None, description="time the solve ends (default: the last hydrograph point; after "
+                                                  "it each stage stays at its last value)")
+    max_step: Optional[PositiveTime] = Field(None, description="largest time step (default: the duration / 100)")
+    first_step: Optional[PositiveTime] = Field(
+        None, description="first time step, and the step after a jump of a stage (default: max_step / 50)")
+    initial_water_table: Optional[Length] = Field(
+        None, description="start from still water at this elevation, m (total head equal to it everywhere); "
+                          "default: the steady solution at the hydrographs' first stages")
+    pore_pressure_grid: Optional[GridSpec] = Field(
+        None, description="grid on which pore pressures are written at every stored time (default: the riverside "
+                          "half of the embankment and the ground below it to the depth of its height)")
+
+
 class SectionSpec(BaseModel):
     """A whole section file."""
 
@@ -332,3 +436,11 @@ class SectionSpec(BaseModel):
     water: WaterSpec = Field(default_factory=WaterSpec)
     solver: SolverSpec = Field(default_factory=SolverSpec)
     checks: ChecksSpec = Field(default_factory=ChecksSpec)
+    transient: Optional[TransientSpec] = Field(
+        None, description="time stepping and outputs of the transient solve (used when a boundary has a hydrograph)")
+
+    @model_validator(mode="after")
+    def _transient(self):
+        if self.transient is not None and not any(b.hydrograph is not None for b in self.boundaries):
+            raise ValueError("'transient' settings need a boundary with a 'hydrograph'")
+        return self

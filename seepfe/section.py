@@ -509,6 +509,9 @@ def _build(spec: SectionSpec, data: dict, label: str, notes: tuple = (), parts: 
     graph = geometry.build_graph(names, polys, outline, bnames, blines, tol,
                                  barriers=tuple(zip(rnames, rlines)))
     if spec.solver.phreatic != "off":     # idealised confined problems may hold any heads (docs/format.md)
-        _check_water_levels(spec, outline, blines, polys, 10 * tol)
+        # a hydrograph is checked at its highest stage (overtopping, water on the ground, an outlet below it)
+        from .hydrograph import peak_spec
+        _check_water_levels(peak_spec(spec) if any(b.hydrograph is not None for b in spec.boundaries) else spec,
+                            outline, blines, polys, 10 * tol)
     return Section(spec=spec, source=label, data=data, input_hash=_hash(data), polygons=tuple(polys),
                    outline=outline, extent=extent, tol=tol, graph=graph, remedies=notes, boundary_parts=dict(parts or {}))

@@ -21,6 +21,7 @@ import numpy as np
 
 from . import accuracy as accuracy_mod
 from . import bcs, fem, linsolve, unsaturated
+from . import transient as transient_mod
 from .bcs import Conditions, conditions
 from .mesh import Mesh, make_mesh
 from .result import Result
@@ -65,10 +66,15 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
     Returns
     -------
     Result
-        Heads, gradients, velocities, boundary flows and solver figures.
+        Heads, gradients, velocities, boundary flows and solver figures. A section with a ``hydrograph`` on a
+        head boundary is solved through time instead (:func:`seepfe.transient.solve_transient`): the return is a
+        :class:`seepfe.transient.TransientResult` (``times`` in s, ``at(t)`` a Result of that moment).
     """
     if not isinstance(section, Section):
         section = load_section(section)
+    if any(b.hydrograph is not None for b in section.spec.boundaries):
+        # a flood hydrograph on a head boundary: the transient solve (issue 14, docs/transient.md)
+        return transient_mod.solve_transient(section, order=order, size=size, mesh=mesh, linear=linear)
     if accuracy is None:
         accuracy = section.spec.solver.accuracy
     if accuracy and mesh is None and size is None:
@@ -171,3 +177,4 @@ def solve(section, *, order: int | None = None, size: float | None = None, mesh:
 
 
 accuracy_mod.register_solver(solve)
+transient_mod.register_steady(solve)

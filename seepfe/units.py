@@ -27,7 +27,7 @@ from typing import Any, Optional
 
 from .errors import SectionError
 
-__all__ = ["Dim", "Units", "FACTORS", "PRESETS", "DIMENSIONS", "parse_units", "to_si", "dimension_of",
+__all__ = ["Dim", "Dims", "Units", "FACTORS", "PRESETS", "DIMENSIONS", "parse_units", "to_si", "dimension_of",
            "SI", "US", "K_RANGE", "unit_dimension", "conductivity_hints", "json_schema", "describe", "column_suffix", "display_columns", "display_text"]
 
 _FT = Fraction(3048, 10000)                                  # m, exact (international foot)
@@ -69,6 +69,25 @@ class Dim:
         js = handler(core_schema)
         if isinstance(js, dict) and js.get("type") in ("number", "integer"):
             js["x-dimension"] = self.name
+        return js
+
+
+@dataclass(frozen=True)
+class Dims:
+    """Marker of the dimensions of a fixed-length list, by position (a hydrograph point [time, head] is
+    ``Dims(("time", "length"))``). Each item is converted as a number with that :class:`Dim`; the JSON
+    Schema lists them as ``prefixItems`` with their ``x-dimension``.
+
+    ``"time"`` is not a dimension of the file's ``"units"``: such numbers are kept as written, in the unit
+    their own object names (a hydrograph's ``time_unit``)."""
+
+    names: tuple
+
+    def __get_pydantic_json_schema__(self, core_schema, handler):
+        js = handler(core_schema)
+        if isinstance(js, dict) and js.get("type") == "array":
+            item = js.get("items") if isinstance(js.get("items"), dict) else {"type": "number"}
+            js["prefixItems"] = [{**item, "x-dimension": n} for n in self.names]
         return js
 
 
@@ -284,6 +303,13 @@ def _dim_in(meta) -> Optional[Dim]:
     return None
 
 
+def _dims_in(meta) -> Optional[Dims]:
+    for m in meta:
+        if isinstance(m, Dims):
+            return m
+    return None
+
+
 def _is_model(ann) -> bool:
     from pydantic import BaseModel
     return isinstance(ann, type) and issubclass(ann, BaseModel)
@@ -318,6 +344,11 @@ def walk(ann, node, visit, path=(), on_expr=None):
         return visit(d, node, path)
     if d is not None and on_expr is not None and isinstance(node, str) and node.startswith("="):
         return on_expr(d, node, path)
+    ds = _dims_in(meta)
+    if ds is not None and isinstance(node, list):
+        # positional dimensions ([time, head]): each item as a number of its own dimension
+        return [walk(typing.Annotated[Any, Dim(ds.names[i])], v, visit, path + (i,), on_expr)
+                if i < len(ds.names) else v for i, v in enumerate(node)]
     args = _union_args(ann)
     if args is not None:
         if len(args) == 1:
@@ -364,6 +395,11 @@ def dimension_of(model, steps: list[str], data: Any = None) -> Optional[str]:
     node = data
     for step in steps:
         ann, meta = _strip(ann)
+        ds = _dims_in(meta)
+        if ds is not None and re.fullmatch(r"\d+", step) and int(step) < len(ds.names):
+            ann = typing.Annotated[float, Dim(ds.names[int(step)])]      # positional: [time, head]
+            node = None
+            continue
         args = _union_args(ann)
         if args is not None:
             m = _pick_model(args, node) if len(args) > 1 else None

@@ -64,8 +64,8 @@ def _sweep_governing(path, tmp, order=1):
     from seepfe.sweep import run_sweep
     from seepfe.sweep.values import get_value
     data = json.loads(Path(path).read_text())
-    head_b = next(b["name"] for b in data["boundaries"] if "head" in b)
-    key = f"boundaries.{head_b}.head"
+    head_b = next(b for b in data["boundaries"] if "head" in b or "hydrograph" in b)
+    key = f"boundaries.{head_b['name']}.{'head' if 'head' in head_b else 'peak'}"     # a hydrograph: its peak
     value = get_value(data, key)
     rep = run_sweep(path, {"vary": {key: [value]}}, out=tmp, workers=1, solve={"order": order}, plots=False)
     rec = json.loads(next((tmp / "cases").glob("*.json")).read_text())["record"]     # cache file: hash + record

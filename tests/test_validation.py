@@ -317,7 +317,8 @@ def test_boundary_with_two_kinds():
 def test_boundary_with_no_kind():
     d = _valid()
     del d["boundaries"][0]["head"]
-    assert _error(d) == "<dict>: boundary 'river': give one of 'head', 'seepage_face', 'flux' or 'drain'"
+    assert _error(d) == ("<dict>: boundary 'river': give one of 'head', 'hydrograph', 'seepage_face', 'flux' or "
+                         "'drain'")
 
 
 # ------------------------------------------------------------------ mesh

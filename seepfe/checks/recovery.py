@@ -71,6 +71,12 @@ def _sample_points(order: int):
     return fem.QUAD[0]
 
 
+#: the geometry of recent recoveries (mesh, vertices, zones): a transient run checks the same exit surfaces on the
+#: same mesh at every time step, and only the heads change
+_SETUPS: list = []
+_SETUPS_KEPT = 4
+
+
 def recover(mesh, h: np.ndarray, vertices: np.ndarray, zones: np.ndarray) -> Patches:
     """Recover the head gradient at the given vertex nodes, using only elements of the given zones.
 
@@ -83,6 +89,37 @@ def recover(mesh, h: np.ndarray, vertices: np.ndarray, zones: np.ndarray) -> Pat
     """
     vertices = np.asarray(vertices, np.int64)
     zones = np.asarray(zones, np.int64)
+    st = _setup(mesh, vertices, zones)
+    K = len(vertices)
+    grad = np.einsum("eqla,el->eqa", st["G"], h[st["cells"]])     # (E', q, 2) on the patches' elements
+    g = grad[st["cols"]].reshape(-1, 2)
+    coef = np.zeros((K, 6, 2))
+    rr = st["rr"]
+    for m, sel, Pm, idx, Mt in st["stages"]:
+        b = np.zeros((K, m, 2))
+        np.add.at(b, rr[sel], Pm[:, :, None] * g[sel][:, None, :])
+        coef[idx, :m] = np.linalg.solve(Mt, b[idx])
+    return Patches(centre=st["centre"], scale=st["scale"], coef=coef, degree=st["degree"], samples=st["count"])
+
+
+def _setup(mesh, vertices: np.ndarray, zones: np.ndarray) -> dict:
+    """Everything of a recovery that depends on the geometry only (patches, sample points, the least-squares
+    matrices and the degree each patch can carry), kept for the last few (mesh, vertices, zones)."""
+    import weakref
+    key = (vertices.tobytes(), zones.tobytes())
+    for ref, k_, st in _SETUPS:
+        if ref() is mesh and k_ == key:          # a weak reference: a mesh gone never matches a new one
+            return st
+    st = _build_setup(mesh, vertices, zones)
+    try:
+        _SETUPS.append((weakref.ref(mesh), key, st))
+    except TypeError:                            # not weakly referable: not kept
+        return st
+    del _SETUPS[:-_SETUPS_KEPT]
+    return st
+
+
+def _build_setup(mesh, vertices: np.ndarray, zones: np.ndarray) -> dict:
     K = len(vertices)
     order = mesh.order
     tri = mesh.triangles
@@ -94,7 +131,6 @@ def recover(mesh, h: np.ndarray, vertices: np.ndarray, zones: np.ndarray) -> Pat
     inv, _ = fem.jacobians(mesh.points, mesh.cells)
     xs = _sample_points(order)
     G = fem.gradients(order, inv, xs)                              # (E, q, nloc, 2)
-    grad = np.einsum("eqla,el->eqa", G, h[mesh.cells])             # (E, q, 2)
     Nv = fem.shape(1, xs)                                          # sample positions from corners
     pos = np.einsum("ql,ela->eqa", Nv, mesh.points[tri])           # (E, q, 2)
     nq = len(xs)
@@ -131,11 +167,10 @@ def recover(mesh, h: np.ndarray, vertices: np.ndarray, zones: np.ndarray) -> Pat
     scale = np.where(scale > 0, scale, 1.0)
     rr = np.repeat(rows, nq)
     X = ((pos[cols] - centre[rows][:, None, :]) / scale[rows][:, None, None]).reshape(-1, 2)
-    g = grad[cols].reshape(-1, 2)
     P = _basis(2, X)                                               # (S, 6)
     count = np.bincount(rr, minlength=K)
-    coef = np.zeros((K, 6, 2))
     degree = np.full(K, -1)
+    stages = []                 # per degree tried: (m, samples used, their basis, patches fitted, their matrices)
     for deg in range(deg_full, -1, -1):
         m = (1, 3, 6)[deg]
         todo = np.flatnonzero(degree < 0)
@@ -144,17 +179,16 @@ def recover(mesh, h: np.ndarray, vertices: np.ndarray, zones: np.ndarray) -> Pat
         sel = np.isin(rr, todo)
         Pm = P[sel, :m]
         M = np.zeros((K, m, m))
-        b = np.zeros((K, m, 2))
         np.add.at(M, rr[sel], Pm[:, :, None] * Pm[:, None, :])
-        np.add.at(b, rr[sel], Pm[:, :, None] * g[sel][:, None, :])
-        Mt, bt = M[todo], b[todo]
+        Mt = M[todo]
         with np.errstate(all="ignore"):
             cond = np.linalg.cond(Mt) if m > 1 else np.where(Mt[:, 0, 0] > 0, 1.0, np.inf)
         ok = (count[todo] >= m) & np.isfinite(cond) & (cond < 1e8)
         if deg == 0:
             ok = count[todo] > 0
         if ok.any():
-            sol = np.linalg.solve(Mt[ok], bt[ok])
-            coef[todo[ok], :m] = sol
+            stages.append((m, sel, Pm, todo[ok], Mt[ok]))
             degree[todo[ok]] = deg
-    return Patches(centre=centre, scale=scale, coef=coef, degree=degree, samples=count)
+    used, local = np.unique(cols, return_inverse=True)        # only the patches' elements are kept
+    return {"G": G[used], "cells": mesh.cells[used], "cols": local.reshape(-1), "rr": rr, "stages": stages,
+            "centre": centre, "scale": scale, "degree": degree, "count": count}

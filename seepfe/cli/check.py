@@ -31,7 +31,10 @@ def run(args) -> int:
                 [[n, f"{(x.k or x.kx) / fK:.3g}", f"{(x.k or x.ky) / fK:.3g}", f"{x.angle:g}",
                   "-" if x.unit_weight is None else f"{x.unit_weight / fW:.4g}"] for n, x in s.materials.items()]))
     print(table("boundaries", ["name", "kind", "value"],
-                [[b.name, b.kind, {"head": f"h = {b.head / fL:.6g} {L}" if b.head is not None else "",
+                [[b.name, b.kind, {"head": f"h = {b.head / fL:.6g} {L}" if b.head is not None else
+                                   (f"hydrograph, {len(b.hydrograph)} points over {b.hydrograph[-1][0] - b.hydrograph[0][0]:g} "
+                                    f"{b.time_unit}(s), {min(p[1] for p in b.hydrograph) / fL:.4g} to "
+                                    f"{max(p[1] for p in b.hydrograph) / fL:.4g} {L}" if b.hydrograph is not None else ""),
                                    "flux": f"q = {u.from_si(b.flux or 0.0, 'flux'):.4g} {u.label('flux')}"}
                   .get(b.kind, "h = y")] for b in s.boundaries]))
     st = m.stats

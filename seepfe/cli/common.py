@@ -79,4 +79,10 @@ def solve_section(args):
     log.info("loaded %s: %d materials, %d zones, %d boundaries (units %s)", sec.source, len(sec.spec.materials),
              len(sec.spec.zones), len(sec.spec.boundaries), sec.units.name)
     size = None if getattr(args, "size", None) is None else args.size * sec.units.factor("length")
+    if getattr(args, "steady", False):
+        # a hydrograph section solved steady at its crest stage (docs/transient.md)
+        from ..hydrograph import has_hydrograph, schedule, section_at
+        if has_hydrograph(sec):
+            sec = section_at(sec, schedule(sec).crest)
+            log.info("steady at the crest of the hydrograph")
     return solve(sec, order=args.order, size=size, linear=getattr(args, "linear", None))

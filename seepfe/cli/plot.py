@@ -24,11 +24,12 @@ def register(sub) -> None:
 
 def run(args) -> int:
     check_out_dir(args.out)                # --out first: refused before any solve
-    res = solve_section(args)              # load first: a bad file answers before the heavy imports
+    run = solve_section(args)              # load first: a bad file answers before the heavy imports
     from ..analysis import analyse
     from ..output import atomic_dir, write_json
     from ..plot import figure_set, save_figure
-    a = analyse(res)
+    a = analyse(run)
+    res = a.result                     # a hydrograph: the governing moment (least FS) of the run
     net = a.flow_net
     written = []
     with atomic_dir(args.out) as tmp:
@@ -36,6 +37,11 @@ def run(args) -> int:
                                detail=args.detail, analysis=a):
             save_figure(item.fig, tmp / item.name)
             written.append(item.name)
+        if getattr(run, "is_transient", False):   # and the figures of the run (docs/transient.md)
+            from ..plot.hydrograph import transient_figures
+            for name, _caption, fig in transient_figures(run):
+                save_figure(fig, tmp / name)
+                written.append(name)
         write_json(tmp / "figures.json", {"figures": {n: [f"{n}.png", f"{n}.svg"] for n in written},
                                           "flow_net": net.as_dict(), "input_sha256": res.section.input_hash,
                                           "governing": a.governing, "caution": CAUTION})
@@ -49,4 +55,4 @@ def run(args) -> int:
     from ..units import display_text
     print(f"verdict: {g['verdict'].upper()}: {display_text(g['why'], u)}")
     print(f"CAUTION: {CAUTION}")
-    return 0 if res.solver_info.get("converged", True) else 3
+    return 0 if run.solver_info.get("converged", True) else 3

@@ -64,6 +64,12 @@ def run(args) -> int:
         written = write_analysis(a, tmp, dxf=getattr(args, "dxf", False))
         html = write_report(a, tmp, show_mesh=args.mesh, arrows=args.arrows, formats=formats, paper=args.paper,
                             exaggeration=args.exaggeration)
+        if getattr(res, "is_transient", False):   # the run's figures beside the report's (docs/transient.md)
+            from ..plot.hydrograph import transient_figures
+            from ..plot.save import save_figure
+            for name, _caption, fig in transient_figures(res):
+                save_figure(fig, tmp / "figures" / name, formats=formats)
+                fig.clear()
         if args.pdf:
             write_pdf(html, tmp / "report.pdf")
     return finish(a, args.out, "report.html (self-contained)" + (", report.pdf" if args.pdf else "")

@@ -302,6 +302,9 @@ def boundary_label(b, units=None) -> str:
     from ..units import SI
     u = units or SI
     name = text(b.name)
+    if b.kind == "head" and b.head is None:        # a hydrograph (docs/transient.md): its highest stage
+        s = f"{name}: hydrograph, crest {u.from_si(max(p[1] for p in b.hydrograph), 'length'):.2f} {u.length}"
+        return s + " (dry above)" if b.dry_above_level else s
     if b.kind == "head":
         s = f"{name}: head {u.from_si(b.head, 'length'):.2f} {u.length}"
         return s + " (dry above)" if b.dry_above_level else s
@@ -379,7 +382,8 @@ def draw_water(ax, section, window=None, zorder: float = 1.5) -> list:
     col = KIND_COLOUR["head"]
     fills, levels, marks = [], [], []
     tol = section.length_tol
-    items = [(np.asarray(b.polyline, float), float(b.head)) for b in section.spec.boundaries if b.kind == "head"]
+    items = [(np.asarray(b.polyline, float), float(b.head)) for b in section.spec.boundaries
+             if b.kind == "head" and b.head is not None]          # a hydrograph has no one level
     lw = section.spec.checks.landside_water_level
     if lw is not None:
         items += [(np.asarray(b.polyline, float), float(lw)) for b in section.spec.boundaries

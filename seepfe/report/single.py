@@ -285,8 +285,14 @@ def assumptions(c: ReportContext) -> list[str]:
     """The assumptions of this run, written from what was solved (HTML items)."""
     r, sec, spec, a = c.result, c.sec, c.spec, c.analysis
     sv = r.solver_info
-    out = [f"Steady two-dimensional Darcy flow in the vertical plane of the section, per {e(c.LU)} of "
-           f"{e(c.kind)} length (flows in {e(c.FL)}); no flow along the {e(c.kind)}, no transient storage. "
+    run = getattr(r, "run", None)              # a moment of a transient run (docs/transient.md)
+    flow = ("Steady two-dimensional Darcy flow" if run is None else
+            "Transient two-dimensional flow under the hydrograph (mixed form of Richards' equation: specific storage "
+            "below the phreatic surface, the retention curve above it, rigid soil; section 4); the results are those "
+            f"of the moment of the least FS, t = {r.time_s / 3600:.4g} h")
+    out = [f"{flow} in the vertical plane of the section, per {e(c.LU)} of "
+           f"{e(c.kind)} length (flows in {e(c.FL)}); no flow along the {e(c.kind)}"
+           + (", no transient storage. " if run is None else ". ") +
            f"Elevations and heads in {e(c.LU)}" + (f", vertical datum: {e(project_of(spec)['datum'])}."
                                                    if project_of(spec)["datum"] else ", on the datum of the section file.")]
     # boundary conditions with their positions
@@ -575,3 +581,14 @@ def summary_json(analysis) -> str:
 
 
 _ = CAUTION
+
+
+def _transient(c: ReportContext) -> str:
+    """A moment of a transient run (docs/transient.md): the run's own section (seepfe.report_transient)."""
+    if getattr(c.result, "run", None) is None:
+        return ""
+    import importlib
+    return importlib.import_module("seepfe.report_transient").report_section(c)
+
+
+add_section("transient", _transient, after="inputs")

@@ -50,6 +50,9 @@ GOVERNING = {"fs": "fs", "fs_mode": "mode", "fs_boundary": "boundary", "fs_x_m":
              "exit_gradient_x_m": "exit_gradient_x_m", "exit_gradient_boundary": "exit_gradient_boundary",
              "fails_within_m_of_toe": "fails_within_m_of_toe", "failing_length_m": "failing_length_m", "verdict": "verdict", "why": "why"}
 _TEXT = ("fs_mode", "fs_boundary", "exit_gradient_boundary", "verdict", "why")
+#: the table's columns of a case under a hydrograph (issue 14) <- the keys of the record's "transient" block
+TRANSIENT = {"least_fs_time_s": "least_fs_time_s", "lag_after_crest_s": "lag_after_crest_s",
+             "peak_toe_head_m": "peak_toe_head_m", "peak_toe_head_time_s": "peak_toe_head_time_s"}
 
 
 @dataclass
@@ -124,6 +127,26 @@ def _locked(out: Path):
         fh.close()                        # closing the file releases the lock
 
 
+def _transient_columns(recs: list, rows: list) -> list[str]:
+    """The transient columns of the table (cases under a hydrograph): SI, then the times again in the
+    hydrograph's unit (hour or day); the rows get the latter added. [] when no case has a hydrograph."""
+    units = [r["transient"].get("time_unit") for r in recs if r and r.get("transient")]
+    if not units:
+        return []
+    from ..hydrograph import TIME_UNITS, time_label
+    u = units[0]
+    extra = []
+    for col in ("least_fs_time_s", "lag_after_crest_s", "peak_toe_head_time_s"):
+        new = f"{col[:-2]}_{time_label(u)}"
+        extra.append(new)
+        for r in rows:
+            r[new] = r.get(col, math.nan) / TIME_UNITS[u]
+    for r in rows:
+        for col in TRANSIENT:
+            r.setdefault(col, math.nan)
+    return list(TRANSIENT) + extra
+
+
 def _row(index, varied, params: dict, columns: dict, rec: dict, h: str, fs_required: float,
          flow_names: list, point_names: list) -> dict:
     r = {"case": index, "varied": varied}
@@ -142,6 +165,10 @@ def _row(index, varied, params: dict, columns: dict, rec: dict, h: str, fs_requi
         r[col] = (v if v is not None else "") if col in _TEXT else from_json_float(v)
     if not g:
         r["verdict"], r["why"] = "not checked", rec.get("status", "")
+    tr = rec.get("transient")
+    if tr is not None:
+        for col, key in TRANSIENT.items():
+            r[col] = from_json_float(tr.get(key))
     r["fs_required"] = fs_required
     r["nodes"] = rec.get("nodes", 0)
     r["hash"] = h[:16]
@@ -259,9 +286,10 @@ def _run(*, sec, data, label, spec, slabel, sopts, points, fs_required, criteria
                         profiles.setdefault((b, ""), []).append((float(c.index), prof))
                     else:
                         profiles.setdefault((b, c.varied), []).append((c.params[c.varied], prof))
+        tcols = _transient_columns(recs, table_rows) if spec.vary else []
         rep.columns = (["case", "varied"] + list(columns.values()) + ["status"]
                        + [f"flow_{b}_m3_s_per_m" for b in flow_names] + [f"head_{p}_m" for p in point_names]
-                       + list(GOVERNING) + ["fs_required", "nodes", "hash"]) if spec.vary else []
+                       + list(GOVERNING) + tcols + ["fs_required", "nodes", "hash"]) if spec.vary else []
         rep.table = table_rows
 
         # ------------------------------------------------------------ targets
@@ -382,6 +410,9 @@ def _write(rep: SweepReport, out: Path, spec: SweepSpec, slabel: str, sec, sopts
                 results = [c for c in rep.columns if c.startswith(("flow_", "head_"))]
                 if any(not math.isnan(r["exit_gradient_max"]) for r in rep.table):
                     results += ["exit_gradient_max", "fs"]
+                results += [c for c in rep.columns if c.startswith(("least_fs_time_", "lag_after_crest_",
+                                                                     "peak_toe_head_m"))
+                            and not c.endswith("_s")]
                 for key, col in (columns.items() if results else ()):      # nothing solved: no figure
                     rows = [r for r in rep.table if r["varied"] in (key, "grid")]
                     others = [c for k, c in columns.items() if k != key] if spec.mode == "grid" else []

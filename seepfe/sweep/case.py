@@ -109,6 +109,17 @@ def _tune_allocator() -> None:
         pass
 
 
+def transient_record(res) -> dict:
+    """The moments of a case under a hydrograph (SI): when the least FS occurs, its lag behind the crest, the
+    stages then, the peak head under the landside toe and when, the seepage volumes, the water balance."""
+    lf, pk = res.least_fs, res.peak_toe_head
+    return {"least_fs": lf["fs"], "least_fs_time_s": lf["time_s"], "lag_after_crest_s": lf["lag_after_crest_s"],
+            "stages_at_least_fs_m": lf["stages_m"], "crest_time_s": res.crest["time_s"],
+            "peak_toe_head_m": pk["head_m"], "peak_toe_head_time_s": pk["time_s"],
+            "volumes_m3_per_m": res.volumes(), "balance_largest_step_error": res.balance["largest_step_error"],
+            "steps": res.solver_info["steps"], "time_unit": res.time_unit}
+
+
 def run_case(payload: dict) -> dict:
     """Solve one case (payload: {"section": dict, "solve": {...}, "points": {...}, "exit": [...] or None}).
 
@@ -127,8 +138,12 @@ def run_case(payload: dict) -> dict:
         with _one_thread(), _quiet_log() as warnings:
             sec = load_section(payload["section"])
             res = solve(sec, order=opts.get("order"), size=opts.get("size"), linear=opts.get("linear"))
-            a = analyse(res, payload.get("exit"))
+            a = analyse(res, payload.get("exit"))        # a hydrograph: the moment of the least FS
             rec = a.record(payload.get("points") or {}, warnings)
+            if getattr(res, "is_transient", False):
+                rec["transient"] = transient_record(res)
+                if not res.solver_info.get("converged", True):
+                    rec["status"] = "not converged"
     except SeepfeError as e:
         return {"status": f"error: {e}", "time_s": time.perf_counter() - t0}
     rec["time_s"] = time.perf_counter() - t0

@@ -84,7 +84,13 @@ def _save(fig, stem: Path) -> list[str]:
 def _label(col: str) -> str:
     """'boundaries.river.head_m' -> 'boundaries.river.head (m)'; 'fs' -> 'least FS at the exit (-)'."""
     names = {"exit_gradient_max": "largest exit gradient (m/m)", "fs": "least FS at the exit (-)",
-             "fs_min": "least FS at the exit (-)", "verdict": "verdict (1 pass, 0 fail)"}
+             "fs_min": "least FS at the exit (-)", "verdict": "verdict (1 pass, 0 fail)",
+             "peak_toe_head_m": "peak head under the landside toe (m)"}
+    for stem, words in (("least_fs_time_", "time of the least FS"), ("lag_after_crest_", "lag of the least FS "
+                                                                      "behind the crest"),
+                        ("peak_toe_head_time_", "time of the peak toe head")):
+        if col.startswith(stem):
+            return f"{words} ({col[len(stem):]})"
     if col in names:
         return names[col]
     if col.startswith("flow_") and col.endswith("_m3_s_per_m"):

@@ -51,7 +51,14 @@ def get_value(data: dict, key: str):
     data = params.resolve(data)          # expressions -> numbers, so the base value is a number
     if "." in key:
         node: Any = data
-        for part in key.split("."):
+        parts = key.split(".")
+        for i, part in enumerate(parts):
+            if (i == len(parts) - 1 and isinstance(node, dict) and part in ("peak", "duration")
+                    and part not in node and isinstance(node.get("hydrograph"), list)):
+                # a hydrograph's peak and duration as written (sweeps vary them, docs/transient.md)
+                pts = [p for p in node["hydrograph"] if isinstance(p, list) and len(p) == 2]
+                if pts:
+                    return max(p[1] for p in pts) if part == "peak" else pts[-1][0] - pts[0][0]
             node = _step(node, part, key)
         return node
     raise SectionError(f"'{key}': not a declared parameter of the section and not a dotted path")
@@ -145,6 +152,8 @@ def infer_unit(data: dict, key: str, units=None) -> str | None:
     '-', 'deg'; None when its dimension cannot be told."""
     from ..units import parse_units
     dim = key_dimension(data, key)
+    if dim == "time":
+        return _time_unit(data, key)              # a hydrograph's time: its own time_unit
     if dim is None:
         params = data.get("parameters")
         if "." not in key and isinstance(params, dict) and isinstance(params.get(key), dict):
@@ -186,6 +195,8 @@ def unit_and_factor(data: dict, key: str, explicit: str | None, sweep_units, fil
             raise SectionError(f"{label}: '{key}': unit '{explicit}' is a unit of {udim.replace('_', ' ')}, but "
                                f"'{key}' is a {base.replace('_', ' ')} ({', '.join(FACTORS[base])})")
         return explicit, FACTORS[udim][explicit] / FACTORS[udim][getattr(file_units, udim)]
+    if dim == "time" and explicit is None:
+        return _time_unit(data, key), 1.0         # a hydrograph's time: in its own time_unit, never converted
     if dim is None:
         if sweep_units != file_units:
             raise SectionError(f"{label}: '{key}': cannot tell its dimension to convert it from the sweep's units; "
@@ -199,3 +210,18 @@ def unit_suffix(unit: str) -> str:
     if unit in ("-", "", "1"):
         return "1"
     return unit.replace("/", "_").replace(" ", "_").replace("*", "_")
+
+
+def _time_unit(data: dict, key: str) -> str:
+    """The time unit a hydrograph time is written in: the key's own boundary's 'time_unit', else the first
+    hydrograph's ('hour' or 'day'), else '-'."""
+    bs = [b for b in data.get("boundaries") or [] if isinstance(b, dict) and b.get("hydrograph") is not None]
+    parts = key.split(".")
+    if len(parts) > 1 and parts[0] == "boundaries":
+        for b in bs:
+            if b.get("name") == parts[1] and isinstance(b.get("time_unit"), str):
+                return b["time_unit"]
+    for b in bs:
+        if isinstance(b.get("time_unit"), str):
+            return b["time_unit"]
+    return "-"
