@@ -183,7 +183,8 @@ def _columns(section, x, y, contrast, depth, names) -> Columns:
         ct, cr = np.cumsum(t), np.cumsum(t / k)
         cum_t = ct - (ct - t)[start][grp]
         cum_r = cr - (cr - t / k)[start][grp]
-        keq = cum_t / cum_r                               # series (harmonic) k of everything above the interface
+        with np.errstate(divide="ignore", invalid="ignore"):   # no thickness above (a vertical face): no contrast
+            keq = np.where(cum_r > 0, cum_t / np.where(cum_r > 0, cum_r, 1.0), np.inf)
         ratio = np.zeros(len(point))
         ratio[:-1] = np.where(nxt[:-1], k[1:] / keq[:-1], 0.0)
         # an embankment or berm zone (built on the ground) never ends the top stratum on its own: a sliver
