@@ -69,12 +69,12 @@ def test_fs_uplift_of_a_two_layer_top_stratum():
 def _heave_case(fs):
     """One sand with i_c = (17 - 9.81) / 9.81; exit gradient i_c / fs (< 0.5)."""
     i = (17.0 - GW) / GW / fs
-    return _column(10.0 * i, [("sand", 10.0, 1e-4, 17.0)]), "heave"
+    return _column(10.0 * i, [("sand", 10.0, 1e-4, 17.0)]), "heave", fs
 
 
 def _gradient_case(i):
     """One heavy sand (i_c 1.24): FS > 2 everywhere, exit gradient i."""
-    return _column(10.0 * i, [("sand", 10.0, 1e-4, 22.0)]), "gradient"
+    return _column(10.0 * i, [("sand", 10.0, 1e-4, 22.0)]), "gradient", (22.0 - GW) / GW / i
 
 
 def _uplift_case(fs):
@@ -83,7 +83,7 @@ def _uplift_case(fs):
     weight = (19.62 - GW) + (15.2 - GW)
     hb = weight / (GW * fs)
     H = hb * (2.0 + 8.0 * kb / ks) / 2.0
-    return _column(H, [("upper", 1.0, kb, 19.62), ("lower", 1.0, kb, 15.2), ("sand", 8.0, ks, 20.0)]), "uplift"
+    return _column(H, [("upper", 1.0, kb, 19.62), ("lower", 1.0, kb, 15.2), ("sand", 8.0, ks, 20.0)]), "uplift", fs
 
 
 @pytest.mark.parametrize("case, verdict", [
@@ -92,8 +92,9 @@ def _uplift_case(fs):
     (_uplift_case(1.55), "fail"), (_uplift_case(1.65), "pass")],
     ids=["heave-1.55", "heave-1.65", "gradient-0.52", "gradient-0.48", "uplift-1.55", "uplift-1.65"])
 def test_verdict_at_the_default_criteria(case, verdict):
-    sec, what = case
+    sec, what, fs = case
     g = _governing(sec)
+    assert g["fs"] == pytest.approx(fs, rel=1e-4)            # the closed forms above
     assert g["verdict"] == verdict, g["why"]
     if verdict == "fail":
         assert what in g["why"]
