@@ -80,9 +80,20 @@ def _schema_validator():
     return jsonschema.Draft202012Validator(schema)
 
 
+@pytest.mark.slow
 def test_solve_sweep_and_api_agree_on_every_section(tmp_path, capsys):
+    _agree(_files(tmp_path), tmp_path, capsys)
+
+
+def test_solve_sweep_and_api_agree_on_wells_drain_and_missing_unit_weight(tmp_path, capsys):
+    # the quick run: the three cases the analysis layer was built for (every example: the slow test above)
+    _agree([f for f in _files(tmp_path) if not f[1].name.endswith(".json") or f[1].parent == tmp_path],
+           tmp_path, capsys)
+
+
+def _agree(files, tmp_path, capsys):
     v = _schema_validator()
-    for name, path in _files(tmp_path):
+    for name, path in files:
         out = tmp_path / f"solve_{path.stem}"
         code = main(["solve", str(path), "--out", str(out), "--order", "1"])
         printed = capsys.readouterr().out

@@ -116,6 +116,7 @@ def _text(html):
     return " ".join(doc.text)
 
 
+@pytest.mark.slow
 def test_cli_report_and_plot_write_atomically(tmp_path, capsys):
     sec = tmp_path / "levee.json"
     sec.write_text(json.dumps(LEVEE))

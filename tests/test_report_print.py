@@ -56,6 +56,7 @@ def test_title_block_fields_are_in_the_html(analysis):
     assert css_string('a"b\\c\nd') == '"a\\"b\\\\c\\A d"'
 
 
+@pytest.mark.slow
 @needs_chromium
 def test_single_section_report_prints_with_the_title_block_on_every_page(analysis, tmp_path):
     html = tmp_path / "report.html"

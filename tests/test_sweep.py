@@ -128,6 +128,7 @@ def test_fragility_zero_cov_is_a_step_at_the_deterministic_stage():
     assert p1 == [0.0, 0.0, 0.0, 1.0] and p15 == [0.0, 1.0, 1.0, 1.0]
 
 
+@pytest.mark.slow
 def test_fragility_sampling_agrees_with_realisations_and_lognormal():
     stages = [1.8, 1.87, 1.95]
     cov, n = 0.8, 24
@@ -163,6 +164,7 @@ def test_binomial_intervals_against_published_values():
 SWEEP6 = {"vary": {"boundaries.base.head": {"from": 0.5, "to": 3.0, "count": 6}}}
 
 
+@pytest.mark.slow
 def test_interrupted_sweep_resumes_and_solves_only_the_missing_cases(tmp_path):
     ref = run_sweep(column(), SWEEP6, out=tmp_path / "ref", workers=1)
     out = tmp_path / "s"
@@ -182,6 +184,7 @@ def test_interrupted_sweep_resumes_and_solves_only_the_missing_cases(tmp_path):
     assert run_sweep(column(), sw, out=out, workers=1).solved == 1
 
 
+@pytest.mark.slow
 def test_killed_subprocess_then_rerun(tmp_path):
     sec, sw, out = tmp_path / "col.json", tmp_path / "sw.json", tmp_path / "k"
     sec.write_text(json.dumps(column()))
@@ -204,6 +207,7 @@ def test_killed_subprocess_then_rerun(tmp_path):
 
 
 # --------------------------------------------------------------------------- Dask
+@pytest.mark.slow
 def test_dask_local_cluster_gives_the_same_table_as_the_local_pool(tmp_path):
     distributed = pytest.importorskip("distributed")
     sweep = {"vary": {"boundaries.base.head": [1.0, 2.5], "materials.blanket.k": [5e-7, 2e-6]}, "mode": "grid"}
