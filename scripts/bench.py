@@ -192,7 +192,7 @@ def _fmt(v, f):
 
 def table(rows: list[dict]) -> str:
     head = ["order", "nodes", "triangles", "mesh (s)", "assembly (s)", "solve (s)", "post (s)", "end to end (s)",
-            "peak (MiB)", "solver", "asm x skfem", "solve / bare LU", "solve / bare AMG", "SuperLU / LDL^T",
+            "peak (MiB)", "solver", "asm x skfem", "solve / bare LU", "solve / bare AMG", "SuperLU / direct",
             "balance (-)"]
     out = []
     for r in rows:

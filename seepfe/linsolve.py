@@ -1,9 +1,11 @@
 """Sparse linear solvers for the condensed (symmetric positive-definite) conductance system.
 
-``direct``: a sparse LDL^T factorisation (qdldl, with its own approximate-minimum-degree ordering), or
-CHOLMOD where scikit-sparse is installed; SuperLU (COLAMD ordering) when neither is importable or the
-LDL^T meets a zero or negative pivot (the matrix is then not positive definite: a part of the section cut
-off from every head boundary, or a contrast beyond double precision).
+``direct``: a sparse Cholesky factorisation: CHOLMOD (supernodal, through cvxopt's binary wheels, or
+scikit-sparse where installed), else qdldl's LDL^T (its own approximate-minimum-degree ordering); SuperLU
+(COLAMD ordering) when none is importable or the factorisation meets a zero or negative pivot (the matrix
+is then not positive definite: a part of the section cut off from every head boundary, or a contrast
+beyond double precision). Measured side by side on the P2 matrix of a levee at 1e5 unknowns
+(scripts/bench.py): CHOLMOD 2.5x, qdldl 1.8-1.9x faster than SuperLU COLAMD.
 ``amg``: smoothed-aggregation algebraic multigrid (pyamg) as a preconditioner for conjugate gradients.
 ``auto``: direct up to :data:`AMG_ABOVE` unknowns, AMG above (measured in scripts/bench.py).
 
@@ -58,11 +60,30 @@ class _LDL:
         return self._f.solve(np.ascontiguousarray(b, dtype=float))
 
 
+class _CvxCholmod:
+    """CHOLMOD's supernodal Cholesky factorisation through cvxopt (GPL-3, binary wheels)."""
+
+    def __init__(self, A: sp.spmatrix):
+        from cvxopt import cholmod, spmatrix
+        C = sp.tril(A, format="coo")                                  # CHOLMOD reads the lower triangle
+        self._M = spmatrix(C.data, C.row.astype(np.int64), C.col.astype(np.int64), size=A.shape)
+        self._F = cholmod.symbolic(self._M)
+        cholmod.numeric(self._M, self._F)          # ArithmeticError when not positive definite
+        self._cholmod = cholmod
+
+    def solve(self, b):
+        from cvxopt import matrix
+        b = np.asarray(b, dtype=float)
+        x = matrix(np.ascontiguousarray(b.reshape(len(b), -1), dtype=float))
+        self._cholmod.solve(self._F, x)
+        return np.asarray(x).reshape(b.shape)
+
+
 def spd_factor(A: sp.spmatrix):
     """Factorise a symmetric positive-definite matrix; returns (object with ``solve(b)``, backend name).
 
-    CHOLMOD when importable, else qdldl's LDL^T, else (or when the LDL^T meets a zero or negative pivot)
-    SuperLU with COLAMD. Raises SolverError when the matrix is singular."""
+    CHOLMOD (cvxopt, or scikit-sparse) when importable, else qdldl's LDL^T, else (or when the factorisation
+    meets a zero or negative pivot) SuperLU with COLAMD. Raises SolverError when the matrix is singular."""
     try:
         from sksparse.cholmod import CholmodNotPositiveDefiniteError, cholesky   # optional, faster where installed
     except ImportError:
@@ -72,6 +93,12 @@ def spd_factor(A: sp.spmatrix):
             return cholesky(A.tocsc()), "cholmod"
         except CholmodNotPositiveDefiniteError:
             pass
+    try:
+        return _CvxCholmod(A), "cholmod-cvxopt"
+    except ImportError:
+        pass
+    except (ArithmeticError, ValueError):      # not positive definite: try the LDL^T, then SuperLU
+        pass
     try:
         f = _LDL(A)
     except ImportError:
@@ -102,8 +129,8 @@ class _Direct:
         x = self._solve(b)
         if not np.all(np.isfinite(x)):
             raise SolverError("the direct solve returned non-finite heads: the system is singular")
-        if self.backend == "qdldl-ldlt":
-            # LDL^T without pivoting: check the residual once per solve (a product with A, ~1 % of the cost)
+        if self.backend in ("qdldl-ldlt", "cholmod-cvxopt"):
+            # no pivoting: check the residual once per solve (a product with A, ~1 % of the cost)
             r = float(np.abs(self.A @ x - b).max())
             scale = float(np.abs(b).max()) + self._amax * float(np.abs(x).max())
             if not r <= 1e-8 * max(scale, 1e-300):

@@ -309,10 +309,16 @@ def test_ldlt_and_superlu_agree_and_a_singular_matrix_is_one_clear_error():
     A = sp.diags([-np.ones(n - 1), 2.0 * np.ones(n), -np.ones(n - 1)], [-1, 0, 1], format="csr")
     b = np.ones(n)
     f = linsolve.factorize(A, "direct")
-    assert f.backend in ("qdldl-ldlt", "cholmod")
+    assert f.backend in ("cholmod-cvxopt", "qdldl-ldlt", "cholmod")
     # exact 1D Poisson solution: x_i = (i + 1)(n - i) / 2 (discrete Laplacian with unit load, common practice)
     i = np.arange(n)
-    assert np.allclose(f.solve(b), (i + 1) * (n - i) / 2.0, rtol=1e-10)
+    exact = (i + 1) * (n - i) / 2.0
+    assert np.allclose(f.solve(b), exact, rtol=1e-10)
+    # every backend of the direct path gives the same solution: CHOLMOD, qdldl's LDL^T, SuperLU
+    ldl = linsolve._LDL(A.tocsc())
+    assert np.allclose(ldl.solve(b), exact, rtol=1e-10)
+    two = np.column_stack([b, 2 * b])                         # several right-hand sides at once
+    assert np.allclose(f.solve(two), np.column_stack([exact, 2 * exact]), rtol=1e-10)
     S = sp.csr_matrix(np.ones((3, 3)))
     with pytest.raises(SolverError):
         linsolve.factorize(S, "direct").solve(np.ones(3))
