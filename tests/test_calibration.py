@@ -99,7 +99,8 @@ def test_a_second_run_replaces_the_folder_and_a_foreign_folder_is_refused(tmp_pa
     assert (mine / "notes.txt").read_text() == "keep me" and sorted(x.name for x in mine.iterdir()) == ["notes.txt"]
 
 
-def test_schemas_are_up_to_date_and_files_validate(run):
+def test_committed_calibration_schemas_are_up_to_date():
+    # the committed text is what the newest pydantic writes (scripts/test_lowest.sh deselects this test)
     spec = importlib.util.spec_from_file_location("write_schema", ROOT / "scripts" / "write_schema.py")
     mod = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(mod)
@@ -107,6 +108,9 @@ def test_schemas_are_up_to_date_and_files_validate(run):
         "run: python scripts/write_schema.py"
     assert (ROOT / "docs" / "observations.schema.json").read_text() == mod.observations_schema_text(), \
         "run: python scripts/write_schema.py"
+
+
+def test_calibration_files_validate_against_the_committed_schemas(run):
     jsonschema = pytest.importorskip("jsonschema")
     _, out, _ = run
     jsonschema.validate(json.loads((out / "calibration.json").read_text()),

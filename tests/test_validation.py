@@ -11,7 +11,6 @@ from __future__ import annotations
 import copy
 import json
 import math
-import shutil
 import subprocess
 import sys
 from pathlib import Path
@@ -352,9 +351,10 @@ def test_mesh_limit_via_solve():
 
 # ------------------------------------------------------------------ CLI
 def _run_cli(args, cwd):
-    """Run the installed ``seepfe`` command (or the same entry point through this interpreter)."""
-    exe = shutil.which("seepfe")
-    cmd = [exe] if exe else [sys.executable, "-c", "import sys; from seepfe.cli import main; sys.exit(main())"]
+    """Run the ``seepfe`` command installed beside this interpreter (never another one on PATH), or the same
+    entry point through this interpreter."""
+    exe = Path(sys.executable).with_name("seepfe")
+    cmd = [str(exe)] if exe.is_file() else [sys.executable, "-c", "import sys; from seepfe.cli import main; sys.exit(main())"]
     return subprocess.run([*cmd, *args], cwd=cwd, capture_output=True, text=True, timeout=120)
 
 

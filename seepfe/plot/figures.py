@@ -7,6 +7,8 @@ linear sub-triangles (P1 or P2 alike), so a large mesh costs one vectorised call
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 
 from ..flownet import flow_net, nice_step
@@ -161,7 +163,10 @@ def field_figure(result, quantity: str = "total_head", window=None, title: str |
         norm = mcolors.BoundaryNorm(bounds, cmap.N)
         cf = ax.tricontourf(base.triangulation(result.mesh, win, corners=True), v, levels=bounds, cmap=cmap, norm=norm,
                             zorder=1)
-        cf.set_rasterized(True) if hasattr(cf, "set_rasterized") else None
+        with warnings.catch_warnings():
+            # matplotlib 3.8 cannot rasterize a contour set and says so; the SVG is then vector (larger, as good)
+            warnings.filterwarnings("ignore", message="Rasterization of", category=UserWarning)
+            cf.set_rasterized(True)
         handles = []
         if len(lv):
             cs = ax.tricontour(tri, v, levels=lv, colors=INK, linewidths=0.55, zorder=4)
