@@ -49,11 +49,20 @@ def write_table(path: Path, header: Sequence[str], rows: Iterable[Sequence] | np
     w.writerow([csv_cell(h) for h in header])
     if isinstance(rows, np.ndarray):
         if rows.size:
-            np.savetxt(buf, np.asarray(rows, float), delimiter=",", fmt=fmt)
+            _write_numbers(buf, np.asarray(rows, float).reshape(len(rows), -1), fmt)
     else:
         for r in rows:
             w.writerow([csv_cell(c, fmt) for c in r])
     Path(path).write_text(buf.getvalue(), encoding="utf-8")
+
+
+def _write_numbers(buf, a: np.ndarray, fmt: str, chunk: int = 50_000) -> None:
+    """Rows of numbers, one C-level %-format per block of rows (several times faster than np.savetxt, which
+    formats row by row in Python); nan, inf and -inf come out spelt so, as from savetxt."""
+    line = ",".join([fmt] * a.shape[1]) + "\n"
+    for i in range(0, len(a), chunk):
+        block = a[i:i + chunk]
+        buf.write((line * len(block)) % tuple(block.ravel().tolist()))
 
 
 def write_csv(path: Path, columns: dict[str, np.ndarray], fmt: str = "%.10g") -> None:

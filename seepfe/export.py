@@ -120,7 +120,7 @@ def write_lines(analysis, folder, units=None, dxf: bool = False) -> list[str]:
                                          **({f"value_{units.label(dim)}": it["value"] / units.factor(dim)}
                                             if units.factor(dim) != 1.0 else {})},
                           "geometry": {"type": "LineString",
-                                       "coordinates": [[round(x / L, 6), round(y / L, 6)] for x, y in it["points"]]}})
+                                       "coordinates": np.round(np.asarray(it["points"], dtype=float) / L, 6).tolist()}})
     net = analysis.flow_net
     gj = {"type": "FeatureCollection",
           "title": analysis.result.section.title,
