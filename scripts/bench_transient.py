@@ -1,7 +1,7 @@
 """Benchmark of the transient solve (issue 14): a 100-step flood hydrograph on the demo levee, in steady-solve
 equivalents measured in the same process.
 
-    python scripts/bench_transient.py            # sections/levee_blanket.json (about 2e4 P2 nodes)
+    python scripts/bench_transient.py            # sections/levee_blanket.json (about 9e3 P2 nodes)
     python scripts/bench_transient.py --repeat 1 --section sections/levee_flood.json
 
 The reference is ``seepfe.solve`` of the steady problem at the crest stage on the same mesh (meshing excluded); the

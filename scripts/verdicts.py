@@ -27,7 +27,7 @@ def _cases():
     import test_checks_blanket as tb
     import test_hand_methods as th
     for p in sorted((ROOT / "sections").glob("*.json")):
-        if p.name.endswith((".sweep.json", ".build.json", ".observations.json")):
+        if p.name.endswith((".sweep.json", ".build.json", ".observations.json", ".stages.json", ".reach.json")):
             continue
         yield f"`sections/{p.name}`", str(p)
     yield "sheet pile s = 7 m in 12 m of medium sand, H = 4 m", th._sheet_pile()

@@ -229,3 +229,14 @@ def test_schema_catches_drift():
     bad = copy.deepcopy(d)
     bad["governing"]["verdict"] = "passes"
     assert list(v.iter_errors(bad))
+
+
+def test_governing_mode_is_heave_where_heave_and_uplift_agree_to_round_off():
+    # across a single stratum with the water table at the surface FS_heave = FS_uplift by algebra
+    # (gamma' z / (gamma_w dh) both; Harr 1962, Groundwater and Seepage, ch. 4): the label must not flip on
+    # the last bit between runs, and a real difference still names what governs
+    from seepfe.checks.exit import _mode
+    assert _mode(1.2345678901234, 1.2345678901234 * (1 - 1e-14)) == "heave"
+    assert _mode(1.2345678901234 * (1 - 1e-14), 1.2345678901234) == "heave"
+    assert _mode(1.30, 1.20) == "uplift"
+    assert _mode(1.20, 1.30) == "heave"

@@ -173,6 +173,13 @@ def failing_stretches(ex: ExitChecks) -> list[tuple[float, float]]:
     return sorted(out)
 
 
+def _mode(fs_heave: float, fs_uplift: float) -> str:
+    """What governs at a point: "heave" or "uplift". Where the two agree to round-off (as they must, by
+    algebra, across a single stratum with the water table at the surface: gamma' z / (gamma_w dh) both) the
+    answer is "heave", so the label never flips between runs on the last bit."""
+    return "heave" if fs_heave <= fs_uplift * (1.0 + 1e-9) else "uplift"
+
+
 def governing_of(ex: ExitChecks) -> dict:
     """The governing values along one exit surface, with the verdict and why (plain data, no nan or inf).
 
@@ -196,7 +203,7 @@ def governing_of(ex: ExitChecks) -> dict:
     if fin.any():
         i = int(np.flatnonzero(fin)[np.argmin(fs[fin])])
         t = float(ex.thickness[i])
-        out.update(fs=float(fs[i]), mode="heave" if ex.fs_heave[i] <= ex.fs_uplift[i] else "uplift",
+        out.update(fs=float(fs[i]), mode=_mode(ex.fs_heave[i], ex.fs_uplift[i]),
                    x_m=float(ex.x[i]), y_m=float(ex.y[i]), distance_from_toe_m=float(ex.distance_from_toe[i]),
                    top_stratum_thickness_m=t if math.isfinite(t) else None)
     ig = np.asarray(ex.exit_gradient, float)
@@ -227,7 +234,8 @@ def governing_of(ex: ExitChecks) -> dict:
                  if fin.any() else "")
         out["verdict"] = "fail"
         out["why"] = (f"'{ex.boundary}' fails ({', '.join(what)}) at {out['failing_points']} of {n} check points, "
-                      f"the farthest at {_where(ex, k)}; {least}; {req}").replace("; ;", ";")
+                      f"failing to {out['fails_within_m_of_toe']:+.1f} m from the toe (the farthest failing point "
+                      f"x = {ex.x[k]:.2f} m); {least}; {req}").replace("; ;", ";")
         if unknown.any():
             zones = ", ".join(f"'{z}' ({w})" for z, w in ex.missing.items()) or "a zone"
             out["why"] += (f"; {int(unknown.sum())} more point(s) could not be checked: {zones}, so the least FS may "
