@@ -185,3 +185,42 @@ def test_report_renders_in_headless_chromium(report_dir, tmp_path):
     assert int(attrs["decoded"]) == n_img              # every embedded PNG decodes
     assert int(attrs["errors"]) == 0                   # no script or resource error
     assert seepfe.CAUTION in run.stdout
+
+
+# ------------------------------------------------------------------ figures drawn by two processes
+def test_figures_drawn_by_two_processes_are_the_figures_drawn_in_turn(result, tmp_path):
+    # the report's figures are independent: a forked copy draws every other one; the SVG bytes (embedded in
+    # the report) and the files written must be exactly those of drawing them one after the other
+    from seepfe.report.single import render_figures
+    a = seepfe.analyse(result)
+    (tmp_path / "one").mkdir()
+    (tmp_path / "two").mkdir()
+    one = render_figures(a, workers=1, folder=tmp_path / "one", formats=("svg", "png"))
+    two = render_figures(a, workers=2, folder=tmp_path / "two", formats=("svg", "png"))
+    assert [i.name for i in one] == [i.name for i in two] and len(one) >= 4
+    assert all(x.svg == y.svg for x, y in zip(one, two))
+    assert sorted(p.name for p in (tmp_path / "one").iterdir()) == sorted(p.name for p in (tmp_path / "two").iterdir())
+    for p in (tmp_path / "one").iterdir():
+        assert p.read_bytes() == (tmp_path / "two" / p.name).read_bytes(), p.name
+
+
+def test_forked_drawing_falls_back_and_never_leaves_a_process_behind():
+    import os
+    from seepfe.report.single import _draw_forked
+    parent = os.getpid()
+    assert _draw_forked(lambda i: bytes([i]), 7) == [bytes([i]) for i in range(7)]
+
+    def fails_in_the_copy(i):
+        if os.getpid() != parent:
+            raise RuntimeError("the copy fails")
+        return bytes([i])
+    assert _draw_forked(fails_in_the_copy, 6) == [bytes([i]) for i in range(6)]     # drawn here instead
+
+    def fails_here(i):
+        if os.getpid() == parent and i == 2:
+            raise ValueError("this side fails")
+        return bytes([i])
+    with pytest.raises(ValueError):
+        _draw_forked(fails_here, 6)
+    with pytest.raises(ChildProcessError):        # the copy was reaped: no child left
+        os.waitpid(-1, os.WNOHANG)

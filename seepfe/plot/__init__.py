@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from .figures import FIELDS, contour_levels, field_figure, flow_net_figure, phreatic_lines, section_figure, velocity_figure
 from .profile import exit_gradient_figure
-from .save import figure_set, save_figure
+from .save import figure_plan, figure_set, save_figure
 
 __all__ = ["section_figure", "field_figure", "flow_net_figure", "velocity_figure", "exit_gradient_figure", "contour_levels",
-           "phreatic_lines", "save_figure", "figure_set", "FIELDS"]
+           "phreatic_lines", "save_figure", "figure_set", "figure_plan", "FIELDS"]

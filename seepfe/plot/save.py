@@ -8,7 +8,7 @@ from pathlib import Path
 
 from . import base
 
-__all__ = ["save_figure", "figure_set", "FigureItem"]
+__all__ = ["save_figure", "figure_set", "figure_plan", "FigureItem"]
 
 log = logging.getLogger("seepfe")
 
@@ -42,6 +42,20 @@ def figure_set(result, show_mesh: bool = False, arrows: bool = False, quantity: 
                detail: bool = True, net=None, analysis=None, exaggeration: float | None = None,
                pressure_whole: bool = True):
     """Yield the standard figures of a result (as :class:`FigureItem`, one at a time to keep memory low).
+    The plan (names, captions, how to draw) is :func:`figure_plan`, with the same arguments.
+    """
+    plan = figure_plan(result, show_mesh=show_mesh, arrows=arrows, quantity=quantity, detail=detail, net=net,
+                       analysis=analysis, exaggeration=exaggeration, pressure_whole=pressure_whole)
+    for i, (fname, caption, draw) in enumerate(plan, 1):
+        log.info("figure %d of %d: %s", i, len(plan), fname)
+        yield FigureItem(fname, caption, draw())
+
+
+def figure_plan(result, show_mesh: bool = False, arrows: bool = False, quantity: str = "pore_pressure",
+                detail: bool = True, net=None, analysis=None, exaggeration: float | None = None,
+                pressure_whole: bool = True) -> list:
+    """The standard figures of a result as a plan: a list of (file stem, caption, draw), ``draw()`` making the
+    figure; nothing is drawn here.
 
     section, mesh (if asked), total head, ``quantity`` (pressure head or pore pressure), flow net,
     velocity arrows (if asked),
@@ -98,6 +112,4 @@ def figure_set(result, show_mesh: bool = False, arrows: bool = False, quantity: 
         plan.append((f"exit_gradient_{safe}", f"Exit gradients and factor of safety along '{name}'",
                      lambda prof=prof, name=name: exit_gradient_figure(prof, title=f"Exit gradients along '{name}'",
                                                                        units=sec.units, toe=toe)))
-    for i, (fname, caption, draw) in enumerate(plan, 1):
-        log.info("figure %d of %d: %s", i, len(plan), fname)
-        yield FigureItem(fname, caption, draw())
+    return plan

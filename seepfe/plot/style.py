@@ -73,7 +73,7 @@ def style():
         "legend.fontsize": 7.5, "legend.frameon": False, "legend.handlelength": 1.6,
         "figure.dpi": 100, "savefig.dpi": 200, "savefig.bbox": "tight", "savefig.pad_inches": 0.08,
         "savefig.facecolor": "white", "figure.facecolor": "white", "text.color": INK,
-        "svg.fonttype": "none", "pdf.fonttype": 42, "ps.fonttype": 42, "path.simplify": True, "agg.path.chunksize": 20000,
+        "svg.fonttype": "none", "svg.hashsalt": "seepfe", "pdf.fonttype": 42, "ps.fonttype": 42, "path.simplify": True, "agg.path.chunksize": 20000,
         "lines.solid_capstyle": "round",
     }
     with matplotlib.rc_context(rc):

@@ -500,31 +500,114 @@ def input_text(sec) -> tuple[str, bytes]:
 
 # ============================================================================ building
 def render_figures(analysis, *, show_mesh: bool = False, arrows: bool = False, exaggeration: float | None = None,
-                   formats=("svg",), folder=None) -> list:
+                   formats=("svg",), folder=None, workers: int | None = None) -> list:
     """Draw the standard figures of the analysis once each; keep the SVG (embedded in the report) and write
-    the ``formats`` asked for into ``folder`` (if given). Returns the FigureItems with ``.svg`` set."""
-    import io
-    from ..plot import figure_set
-    from ..plot.style import style
-    items = []
-    for item in figure_set(analysis.result, show_mesh=show_mesh, arrows=arrows, analysis=analysis,
-                           exaggeration=exaggeration, pressure_whole=False):
+    the ``formats`` asked for into ``folder`` (if given). Returns the FigureItems with ``.svg`` set.
+
+    ``workers``: processes that draw (default :func:`figure_workers`: 2 where the machine has two free cores
+    and can fork, else 1). With 2, a forked copy of this process draws every other figure while this one
+    draws the rest (each figure is independent; the files and SVG bytes are the same as drawn in turn).
+    Should the copy fail, its figures are drawn here.
+    """
+    from ..plot import figure_plan
+    from ..plot.save import FigureItem
+    plan = figure_plan(analysis.result, show_mesh=show_mesh, arrows=arrows, analysis=analysis,
+                       exaggeration=exaggeration, pressure_whole=False)
+
+    def one(i: int) -> bytes:
+        import io
+        from ..plot.style import style
+        name, _, draw = plan[i]
+        log.info("figure %d of %d: %s", i + 1, len(plan), name)
+        fig = draw()
         with style():
             buf = io.BytesIO()
-            item.fig.savefig(buf, format="svg", metadata={"Date": None})
-            item.svg = buf.getvalue()
+            fig.savefig(buf, format="svg", metadata={"Date": None})
+            svg = buf.getvalue()
             if folder is not None:
                 for f in formats:
-                    p = folder / f"{item.name}.{f}"
+                    p = folder / f"{name}.{f}"
                     if f == "svg":
-                        p.write_bytes(item.svg)
+                        p.write_bytes(svg)
                     else:
-                        item.fig.savefig(p, format=f, dpi=200, metadata={"Software": None} if f == "png" else
-                                         {"CreationDate": None} if f == "pdf" else {})
-        item.fig.clear()
-        item.fig = None
+                        fig.savefig(p, format=f, dpi=200, metadata={"Software": None} if f == "png" else
+                                    {"CreationDate": None} if f == "pdf" else {})
+        fig.clear()
+        return svg
+
+    n_workers = figure_workers() if workers is None else max(1, int(workers))
+    svgs = _draw_forked(one, len(plan)) if n_workers > 1 and len(plan) >= 4 else [one(i) for i in range(len(plan))]
+    items = []
+    for (name, caption, _), svg in zip(plan, svgs):
+        item = FigureItem(name, caption, None)
+        item.svg = svg
         items.append(item)
     return items
+
+
+def figure_workers() -> int:
+    """Processes that draw a report's figures: 2 on a machine with at least two usable cores that can fork
+    (Linux), else 1; the environment variable ``SEEPFE_FIGURE_WORKERS=1`` keeps it to one."""
+    import os
+    import sys
+    env = os.environ.get("SEEPFE_FIGURE_WORKERS", "").strip()
+    if env == "1" or not sys.platform.startswith("linux") or not hasattr(os, "fork"):
+        return 1
+    try:
+        cores = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):
+        cores = os.cpu_count() or 1
+    return 2 if cores >= 2 else 1
+
+
+def _draw_forked(one, n: int) -> list:
+    """[one(i) for i in range(n)], the odd i drawn by a forked copy of this process (results back through a
+    pipe), the even ones here; whatever the copy did not deliver is drawn here."""
+    import os
+    import pickle
+    import signal
+    theirs = list(range(1, n, 2))
+    r, w = os.pipe()
+    pid = os.fork()
+    if pid == 0:                                   # the copy: draw, send, and leave without any clean-up
+        code = 1
+        try:
+            os.close(r)
+            data = pickle.dumps([one(i) for i in theirs])
+            with os.fdopen(w, "wb") as f:
+                f.write(data)
+            code = 0
+        except BaseException:                      # noqa: BLE001 - the parent draws what is missing
+            pass
+        finally:
+            os._exit(code)
+    os.close(w)
+    out: list = [None] * n
+    try:
+        for i in range(0, n, 2):
+            out[i] = one(i)
+        f, r = os.fdopen(r, "rb"), None
+        with f:
+            data = f.read()
+        _, status = os.waitpid(pid, 0)
+        pid = None
+        got = pickle.loads(data) if status == 0 and data else None
+        if isinstance(got, list) and len(got) == len(theirs):
+            for i, svg in zip(theirs, got):
+                out[i] = svg
+    finally:
+        if r is not None:
+            os.close(r)
+        if pid is not None:                        # this side failed: stop the copy and reap it
+            try:
+                os.kill(pid, signal.SIGKILL)
+                os.waitpid(pid, 0)
+            except OSError:
+                pass
+    for i in theirs:
+        if out[i] is None:
+            out[i] = one(i)
+    return out
 
 
 def build_report(analysis, figures=None, *, show_mesh: bool = False, arrows: bool = False, generated: str | None = None,
