@@ -33,7 +33,12 @@ SPLIT_ABOVE = 30_000
 SLIVER_DEG = 1.0
 #: triangles the mesher makes beside each side of an outline or zone edge much shorter than the element
 #: size (the mesh must follow every vertex); measured: 7.2 at edges 1/125 and 7.3 at 1/1000 of the size
-_PER_SHORT_EDGE = 7.0
+#: (a wavy ground line of many vertices makes more: 17 a side, so the estimate is low by up to 2.5x there)
+_PER_SHORT_EDGE = 7.2
+#: estimated triangles forced by short edges above which a section is refused unless its file sets
+#: mesh.max_elements: gmsh then takes minutes (a 40 m wavy ground line of 10,000 vertices, estimate 7.2e4,
+#: made 1.7e5 triangles and checks in 7 s; of 100,000 vertices it gave no answer in 20 minutes)
+FORCED_MAX = 200_000
 _EQ = math.sqrt(3.0) / 4.0      # area of the equilateral triangle of unit side
 
 
@@ -527,6 +532,9 @@ def make_mesh(section: Section, order: int | None = None, size: float | None = N
         if not est + forced <= ms.max_elements:
             raise SectionError(msg + f", more than max_elements = {ms.max_elements}; simplify the polygons "
                                "(fewer vertices) or raise 'mesh.max_elements'")
+        if forced > FORCED_MAX and "max_elements" not in ms.model_fields_set:
+            raise SectionError(msg + f" (meshing them takes minutes); simplify the polygons (fewer vertices), or, "
+                               "to mesh them as drawn, set 'mesh.max_elements' in the file")
         log.warning("%s; simplify the polygons (fewer vertices) for a faster mesh", msg)
     if split is None:
         split = ms.split

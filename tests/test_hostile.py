@@ -743,3 +743,33 @@ def test_build_inputs_are_read_with_a_cap_too(tmp_path, capsys):
     assert main(["build", str(b), "--out", str(tmp_path / "s.json")]) == 2
     _one_line_error(capsys, "larger than")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["b.json"]
+
+
+def _wavy_section(n: int) -> dict:
+    x = np.linspace(-20, 20, n)
+    top = np.column_stack([x, 0.1 * np.sin(x)]).tolist()
+    return {"materials": {"s": {"k": 1e-5}},
+            "zones": [{"name": "g", "material": "s", "polygon": [[20.0, -5.0], [-20.0, -5.0]] + top}],
+            "boundaries": [{"name": "left", "polyline": [[-20, -5], top[0]], "head": 1.0},
+                           {"name": "right", "polyline": [[20, -5], top[-1]], "head": 0.0}]}
+
+
+def test_a_polygon_whose_vertices_would_take_minutes_to_mesh_is_refused_in_one_line(tmp_path, capsys, monkeypatch):
+    # 40,000 vertices 1 mm apart on a 40 m ground line: the mesh would follow every one (about 7e5
+    # triangles; 1e5 vertices gave no answer in 20 minutes): refused before gmsh starts, with what to do
+    import seepfe.mesh
+    d = _wavy_section(40_000)
+    p = _write(tmp_path / "wavy.json", d)
+    assert main(["check", str(p)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "simplify the polygons" in err[0] and "mesh.max_elements" in err[0], err
+
+    def reached(*a, **k):
+        raise SeepfeError("gmsh reached")
+    monkeypatch.setattr(seepfe.mesh, "_gmsh_mesh", reached)
+    with pytest.raises(SeepfeError, match="simplify the polygons"):
+        seepfe.make_mesh(seepfe.load_section(d))
+    # the engineer who sets mesh.max_elements in the file asks for the mesh as drawn: no refusal
+    d["mesh"] = {"max_elements": 2_000_000}
+    with pytest.raises(SeepfeError, match="gmsh reached"):
+        seepfe.make_mesh(seepfe.load_section(d))
