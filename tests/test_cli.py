@@ -1,10 +1,13 @@
 """The CLI in-process: check and solve write what they promise, and never a half-written folder."""
 
 import json
+import subprocess
+import sys
 from pathlib import Path
 
 import meshio
 import numpy as np
+import pytest
 
 from seepfe.cli import main
 
@@ -137,3 +140,18 @@ def test_output_folders_follow_the_umask(tmp_path, capsys):
         os.umask(old)
     assert (tmp_path / "o").stat().st_mode & 0o777 == 0o755
     assert (tmp_path / "o" / "input").stat().st_mode & 0o777 == 0o755
+
+
+@pytest.mark.parametrize("cmd", ["solve", "plot", "report", "check"])
+def test_a_file_that_is_not_json_answers_before_numpy_is_imported(tmp_path, cmd):
+    # the one-line error of a broken file must not wait for the numerical stack (issue 11: well under half a
+    # second): the file is parsed with the standard library before anything heavy is imported
+    bad = tmp_path / "bad.json"
+    bad.write_text('{"title": "x", "materials": ', encoding="utf-8")
+    args = [cmd, str(bad)] + ([] if cmd == "check" else ["--out", str(tmp_path / "out")])
+    code = ("import sys\nfrom seepfe.cli import main\nrc = main(%r)\n"
+            "print(rc, 'numpy' in sys.modules, 'pydantic' in sys.modules)" % (args,))
+    p = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=tmp_path, timeout=60)
+    assert p.stdout.split() == ["2", "False", "False"], p.stdout + p.stderr
+    assert p.stderr.startswith(f"seepfe: error: {bad}: not valid JSON at line 1"), p.stderr
+    assert not (tmp_path / "out").exists()

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from .common import add_section_args, parser_for, table
+from .common import add_section_args, parser_for, read_first, table
 
 
 def register(sub) -> None:
@@ -16,6 +16,7 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
+    read_first(args.section)               # a file that is not JSON answers before the heavy imports
     from ..mesh import make_mesh
     from ..section import load_section
     sec = load_section(args.section)

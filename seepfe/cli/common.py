@@ -8,7 +8,7 @@ import logging
 from ..text import table
 
 __all__ = ["table", "add_section_args", "add_solve_args", "solve_section", "parser_for", "EXIT_CODES",
-           "check_out_dir"]
+           "check_out_dir", "read_first"]
 
 log = logging.getLogger("seepfe")
 
@@ -37,6 +37,14 @@ def _positive(text: str) -> float:
     if not v > 0 or v == float("inf"):
         raise argparse.ArgumentTypeError(f"must be a finite number > 0, got {text}")
     return v
+
+
+def read_first(path) -> None:
+    """Read and parse a section file with the standard library alone, so that a file that is not JSON, too
+    large or nested too deeply answers in its one line before numpy, pydantic and the rest are imported
+    (load_section reads it again, which costs a millisecond for an ordinary section)."""
+    from ..jsonin import read_json
+    read_json(path, "section file")
 
 
 def check_out_dir(path, sweep: bool = False) -> None:

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from ..about import CAUTION
-from .common import add_solve_args, check_out_dir, parser_for, solve_section
+from .common import add_solve_args, check_out_dir, parser_for, read_first, solve_section
 
 
 def register(sub) -> None:
@@ -23,7 +23,8 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
-    check_out_dir(args.out)                # --out first: refused before any solve
+    read_first(args.section)               # a file that is not JSON answers before the heavy imports
+    check_out_dir(args.out)                # --out: refused before any solve
     run = solve_section(args)              # load first: a bad file answers before the heavy imports
     from ..analysis import analyse
     from ..output import atomic_dir, write_json

@@ -3,7 +3,7 @@ with ``--stages SWEEP``, a stage study of the section over the river stages of a
 
 from __future__ import annotations
 
-from .common import add_solve_args, check_out_dir, parser_for, solve_section
+from .common import add_solve_args, check_out_dir, parser_for, read_first, solve_section
 
 
 def register(sub) -> None:
@@ -47,7 +47,8 @@ def _formats(text: str) -> tuple:
 
 
 def run(args) -> int:
-    check_out_dir(args.out, sweep=args.stages is not None)     # --out first: refused before any solve
+    read_first(args.section)               # a file that is not JSON answers before the heavy imports
+    check_out_dir(args.out, sweep=args.stages is not None)     # --out: refused before any solve
     from ..errors import SeepfeError
     if args.exaggeration is not None and not (0 < args.exaggeration <= 100):
         raise SeepfeError(f"--exaggeration must be > 0 and <= 100, got {args.exaggeration:g}")
