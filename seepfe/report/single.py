@@ -566,9 +566,14 @@ def _draw_forked(one, n: int) -> list:
     import os
     import pickle
     import signal
+    import warnings
     theirs = list(range(1, n, 2))
     r, w = os.pipe()
-    pid = os.fork()
+    with warnings.catch_warnings():
+        # Python >= 3.12 warns that forking a process with threads (here the BLAS pool, idle) may deadlock the
+        # child; the copy only draws with matplotlib and leaves by os._exit, and BLAS re-arms its pool at fork
+        warnings.filterwarnings("ignore", message=r".*use of fork\(\) may lead to deadlocks", category=DeprecationWarning)
+        pid = os.fork()
     if pid == 0:                                   # the copy: draw, send, and leave without any clean-up
         code = 1
         try:
