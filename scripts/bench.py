@@ -74,7 +74,7 @@ def _skfem_assembly(mesh, Kz):
     """scikit-fem assembly of int grad(v) . K grad(u) on the same mesh; returns (seconds, energy of u = x)."""
     import numpy as np
     import skfem
-    from skfem.helpers import dot, grad
+    from skfem.helpers import grad
 
     m = skfem.MeshTri(mesh.points[: mesh.n_vertices].T.copy(), mesh.triangles.T.copy())
     K = Kz[mesh.zone]
@@ -247,7 +247,7 @@ def report_ratio(section: str = "sections/levee_blanket.json", repeat: int = 2) 
     import matplotlib.figure  # noqa: F401 - imported by the report; counted below, once
     from seepfe.analysis import analyse
     from seepfe.output import write_analysis
-    from seepfe.report.single import build_report, render_figures
+    from seepfe.report.single import build_report
     from seepfe.solver import solve
     best = None
     for _ in range(repeat):

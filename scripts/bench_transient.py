@@ -38,7 +38,6 @@ def main(argv=None) -> int:
     ap.add_argument("--repeat", type=int, default=2, help="best of this many runs (reference and transient runs)")
     ap.add_argument("--steps", type=int, default=100)
     args = ap.parse_args(argv)
-    import numpy as np
     import seepfe
     from seepfe.hydrograph import section_at
     from seepfe.transient import solve_transient

@@ -166,7 +166,6 @@ class FlowNet:
 def _reference_zone_k(result) -> tuple[float, str]:
     """sqrt(det K) of the material that carries the most flow (area x |v|), m/s, and its name."""
     m, sec = result.mesh, result.section
-    K = result.element_K
     p = m.points[m.triangles]
     area = 0.5 * np.abs((p[:, 1, 0] - p[:, 0, 0]) * (p[:, 2, 1] - p[:, 0, 1])
                         - (p[:, 2, 0] - p[:, 0, 0]) * (p[:, 1, 1] - p[:, 0, 1]))

@@ -533,7 +533,7 @@ def make_mesh(section: Section, order: int | None = None, size: float | None = N
             raise SectionError(msg + f", more than max_elements = {ms.max_elements}; simplify the polygons "
                                "(fewer vertices) or raise 'mesh.max_elements'")
         if forced > FORCED_MAX and "max_elements" not in ms.model_fields_set:
-            raise SectionError(msg + f" (meshing them takes minutes); simplify the polygons (fewer vertices), or, "
+            raise SectionError(msg + " (meshing them takes minutes); simplify the polygons (fewer vertices), or, "
                                "to mesh them as drawn, set 'mesh.max_elements' in the file")
         log.warning("%s; simplify the polygons (fewer vertices) for a faster mesh", msg)
     if split is None:

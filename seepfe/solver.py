@@ -20,7 +20,7 @@ import time
 import numpy as np
 
 from . import accuracy as accuracy_mod
-from . import bcs, fem, linsolve, unsaturated
+from . import bcs, fem, unsaturated
 from . import transient as transient_mod
 from .bcs import Conditions, conditions
 from .mesh import Mesh, make_mesh

@@ -47,7 +47,7 @@ import scipy.sparse.linalg as spla
 
 from . import bcs, fem, hydrograph, linsolve
 from .about import CAUTION
-from .errors import SectionError, SolverError
+from .errors import SolverError
 from .hydrograph import TIME_UNITS, section_at, time_label
 from .mesh import Mesh, make_mesh
 from .result import Result

@@ -2,11 +2,9 @@
 
 from __future__ import annotations
 
-import copy
 import json
 from pathlib import Path
 
-import numpy as np
 import pytest
 from shapely.geometry import Point, Polygon
 

@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 import seepfe
-from seepfe.checks import critical_gradient, handmethods as hm
+from seepfe.checks import critical_gradient
 from seepfe.schema import MaterialSpec
 
 KHOSLA = "khosla"

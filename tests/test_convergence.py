@@ -25,7 +25,6 @@ Slopes are fitted by least squares to log(error) against log(h) over four nested
 """
 
 import numpy as np
-import pytest
 import scipy.sparse.linalg as spla
 from scipy.integrate import quad
 

@@ -88,7 +88,6 @@ def test_the_graph_sees_deferred_imports():
     assert "seepfe.analysis" in g["seepfe.sweep.case"]
 
 
-import pytest
 
 
 def test_no_import_cycles():

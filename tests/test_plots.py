@@ -12,7 +12,6 @@ Sources:
 * Impervious boundaries are flow lines (the stream function is constant along them): Harr (1962) ch. 2.
 """
 
-import copy
 
 import numpy as np
 import pytest

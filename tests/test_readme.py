@@ -1,7 +1,6 @@
 """The README's Python blocks run, its JSON block is a valid section, and CI runs its test command."""
 
 import json
-import os
 import re
 from pathlib import Path
 

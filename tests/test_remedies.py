@@ -24,7 +24,7 @@ import numpy as np
 import pytest
 
 import seepfe
-from seepfe import params, remedies
+from seepfe import params
 from seepfe.errors import SectionError
 
 KF, KB, ZB, D = 1e-4, 1e-7, 2.0, 20.0       # sand, blanket (m/s), blanket and sand thickness (m)

@@ -19,7 +19,7 @@ import pytest
 
 import seepfe
 from seepfe.cli import main
-from seepfe.report import build_report, write_report
+from seepfe.report import write_report
 
 # a small invented levee on a clay top stratum over sand, with a landside seepage face (coarse mesh)
 LEVEE = {

@@ -1,7 +1,6 @@
 """``seepfe report --pdf``: a real PDF from headless Chromium, or one clear line and no folder without it."""
 
 import shutil
-from pathlib import Path
 
 import pytest
 

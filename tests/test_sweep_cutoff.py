@@ -10,7 +10,6 @@ the other end of its bracket must fail it, within the stated tolerance.
 import copy
 
 import numpy as np
-import pytest
 
 import seepfe
 from seepfe.sweep import run_sweep

@@ -23,7 +23,6 @@ import pytest
 from scipy.special import erfc
 
 import seepfe
-from seepfe.cli import main
 from seepfe.hydrograph import section_at
 from seepfe.transient import solve_transient
 

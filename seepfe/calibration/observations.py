@@ -27,35 +27,19 @@ the top-level one). Every fault is a one-line :class:`~seepfe.errors.SectionErro
 from __future__ import annotations
 
 import json
-import math
 from dataclasses import dataclass, field
 from typing import Annotated, Literal, Optional, Union
 
 import numpy as np
-from pydantic import AfterValidator, BaseModel, ConfigDict, Field, ValidationError, model_validator
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from ..errors import SectionError
+from ..schema import Finite, Name, Positive
 from ..units import SI, Units, parse_units
 
 __all__ = ["ObservationsSpec", "Observations", "Event", "FitKey", "load_observations", "read_json"]
 
 
-def _finite(v: float) -> float:
-    if not math.isfinite(v):
-        raise ValueError(f"must be a finite number, got {v}")
-    return v
-
-
-def _positive(v: float) -> float:
-    _finite(v)
-    if v <= 0:
-        raise ValueError(f"must be > 0, got {v:g}")
-    return v
-
-
-Finite = Annotated[float, AfterValidator(_finite)]
-Positive = Annotated[float, AfterValidator(_positive)]
-Name = Annotated[str, Field(min_length=1, max_length=200)]
 _CFG = ConfigDict(extra="forbid", frozen=True)
 FixedValues = dict[str, Union[Finite, str, bool]]
 

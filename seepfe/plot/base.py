@@ -377,7 +377,7 @@ def draw_water(ax, section, window=None, zorder: float = 1.5) -> list:
     Returns a legend handle when any water is drawn."""
     from matplotlib.collections import LineCollection, PolyCollection
     from matplotlib.lines import Line2D
-    from shapely.geometry import LineString, Polygon, box
+    from shapely.geometry import Polygon, box
     x0, x1, y0, y1 = window or (ax.get_xlim() + ax.get_ylim())
     col = KIND_COLOUR["head"]
     fills, levels, marks = [], [], []

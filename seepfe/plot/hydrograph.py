@@ -7,7 +7,6 @@ day), lengths and flows in the section file's units; factors of safety and gradi
 
 from __future__ import annotations
 
-import math
 
 import numpy as np
 
@@ -185,7 +184,6 @@ def _window(tres):
 def phreatic_figure(tres, times=None):
     """The section with the phreatic line (pressure head 0) and the river level at stored times, coloured by time."""
     import matplotlib
-    from matplotlib.collections import LineCollection
     from matplotlib.colors import Normalize
     from matplotlib.lines import Line2D
     from ..hydrograph import hydrographs

@@ -269,7 +269,7 @@ def build_stage_report(sec, stage, col, rows, rep, target, added, *, paper="A4",
     P.append('<h2 class="appendix" id="figures">Appendix A. Figures</h2>')
     for i, (name, cap, svg) in enumerate(figs, 1):
         P.append(svg_figure(svg, name, i, cap))
-    P.append(f'<p class="note">The sweep\'s own tables and figures (table.csv, sweep.json, vs_*.svg, profiles_*.svg) '
+    P.append('<p class="note">The sweep\'s own tables and figures (table.csv, sweep.json, vs_*.svg, profiles_*.svg) '
              "are beside this file.</p>" + caution())
     return page(title + " – stage study", P, project_of(sec.spec), "Stage study of one section", paper,
                 f"seepfe {__version__}")
