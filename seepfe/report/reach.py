@@ -119,30 +119,17 @@ def station_fault(record, payload=None):
 def run_station(payload: dict) -> dict:
     """A worker's job for one station: solve, analyse, the case record, and the station's own report (HTML
     and summary.json as text, so it travels back from a cluster too)."""
-    from ..sweep.case import _one_thread, _quiet_log, _tune_allocator
-    import time
-    _tune_allocator()
-    from ..analysis import analyse
-    from ..section import load_section
-    from ..solver import solve
+    from ..sweep.case import record_case
+    return record_case(payload, _station_report)
+
+
+def _station_report(a, res, rec: dict, payload: dict) -> None:
     from .single import build_report
-    t0 = time.perf_counter()
-    opts = payload.get("solve") or {}
-    try:
-        with _one_thread(), _quiet_log() as warnings:
-            sec = load_section(payload["section"])
-            res = solve(sec, order=opts.get("order"), size=opts.get("size"))
-            a = analyse(res)
-            rec = a.record({}, warnings)
-            rep = payload.get("report") or {}
-            rec["report_html"] = build_report(a, paper=rep.get("paper", "A4"))
-            rec["summary_json"] = json.dumps(a.to_dict(), indent=1)
-            bal = res.balance
-            rec["seepage_m3_s_per_m"] = 0.5 * (bal["inflow_m3_s_per_m"] + bal["outflow_m3_s_per_m"])
-    except SeepfeError as x:
-        return {"status": f"error: {x}", "time_s": time.perf_counter() - t0}
-    rec["time_s"] = time.perf_counter() - t0
-    return rec
+    rep = payload.get("report") or {}
+    rec["report_html"] = build_report(a, paper=rep.get("paper", "A4"))
+    rec["summary_json"] = json.dumps(a.to_dict(), indent=1)
+    bal = res.balance
+    rec["seepage_m3_s_per_m"] = 0.5 * (bal["inflow_m3_s_per_m"] + bal["outflow_m3_s_per_m"])
 
 
 class ReachResult(BaseModel):

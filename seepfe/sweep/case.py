@@ -127,6 +127,21 @@ def run_case(payload: dict) -> dict:
     {"status": "error: ..."} instead of raising. ``exit`` names the exit surfaces to check (default:
     the same rule as every other command, :func:`seepfe.analyse`).
     """
+    return record_case(payload, _transient_fields)
+
+
+def _transient_fields(a, res, rec: dict, payload: dict) -> None:
+    if getattr(res, "is_transient", False):
+        rec["transient"] = transient_record(res)
+        if not res.solver_info.get("converged", True):
+            rec["status"] = "not converged"
+
+
+def record_case(payload: dict, extra=None) -> dict:
+    """What a worker does with one payload (see :func:`run_case`): load, solve, analyse and the case record,
+    in one BLAS thread with the log kept as warnings; ``extra(analysis, result, record, payload)`` adds to the
+    record inside the same guard (a module-level function, so it travels to worker processes). A
+    SeepfeError gives {"status": "error: ...", "time_s": ...}."""
     _tune_allocator()
     from ..analysis import analyse
     from ..errors import SeepfeError
@@ -140,10 +155,8 @@ def run_case(payload: dict) -> dict:
             res = solve(sec, order=opts.get("order"), size=opts.get("size"), linear=opts.get("linear"))
             a = analyse(res, payload.get("exit"))        # a hydrograph: the moment of the least FS
             rec = a.record(payload.get("points") or {}, warnings)
-            if getattr(res, "is_transient", False):
-                rec["transient"] = transient_record(res)
-                if not res.solver_info.get("converged", True):
-                    rec["status"] = "not converged"
+            if extra is not None:
+                extra(a, res, rec, payload)
     except SeepfeError as e:
         return {"status": f"error: {e}", "time_s": time.perf_counter() - t0}
     rec["time_s"] = time.perf_counter() - t0
