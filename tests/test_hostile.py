@@ -755,18 +755,21 @@ def _wavy_section(n: int) -> dict:
 
 
 def test_a_polygon_whose_vertices_would_take_minutes_to_mesh_is_refused_in_one_line(tmp_path, capsys, monkeypatch):
-    # 40,000 vertices 1 mm apart on a 40 m ground line: the mesh would follow every one (about 7e5
-    # triangles; 1e5 vertices gave no answer in 20 minutes): refused before gmsh starts, with what to do
+    # 30,000 vertices 1.3 mm apart on a 40 m ground line: the mesh would follow every one (estimated 2.2e5
+    # triangles, made about 2.5x that; 1e5 vertices gave no answer in 20 minutes): refused before gmsh starts,
+    # with what to do
     import seepfe.mesh
-    d = _wavy_section(40_000)
-    p = _write(tmp_path / "wavy.json", d)
+    p = _write(tmp_path / "wavy.json", _wavy_section(30_000))
     assert main(["check", str(p)]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "simplify the polygons" in err[0] and "mesh.max_elements" in err[0], err
 
+    # the same rule on a smaller polygon with the bound lowered (cheaper to load)
     def reached(*a, **k):
         raise SeepfeError("gmsh reached")
     monkeypatch.setattr(seepfe.mesh, "_gmsh_mesh", reached)
+    monkeypatch.setattr(seepfe.mesh, "FORCED_MAX", 20_000)
+    d = _wavy_section(4_000)
     with pytest.raises(SeepfeError, match="simplify the polygons"):
         seepfe.make_mesh(seepfe.load_section(d))
     # the engineer who sets mesh.max_elements in the file asks for the mesh as drawn: no refusal
