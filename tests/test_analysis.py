@@ -232,11 +232,24 @@ def test_schema_catches_drift():
 
 
 def test_governing_mode_is_heave_where_heave_and_uplift_agree_to_round_off():
-    # across a single stratum with the water table at the surface FS_heave = FS_uplift by algebra
-    # (gamma' z / (gamma_w dh) both; Harr 1962, Groundwater and Seepage, ch. 4): the label must not flip on
-    # the last bit between runs, and a real difference still names what governs
+    # across a single stratum with the water table at the surface FS_heave = FS_uplift by algebra (both are
+    # gamma' z / (gamma_w dh); common practice): the label must not flip on the last bit between runs, and a
+    # real difference still names what governs
     from seepfe.checks.exit import _mode
     assert _mode(1.2345678901234, 1.2345678901234 * (1 - 1e-14)) == "heave"
     assert _mode(1.2345678901234 * (1 - 1e-14), 1.2345678901234) == "heave"
     assert _mode(1.30, 1.20) == "uplift"
     assert _mode(1.20, 1.30) == "heave"
+
+
+def test_the_verdict_line_gives_the_failing_reach_of_the_table():
+    # one definition of how far the failure reaches (checks.exit.failing_stretches): the text an engineer
+    # reads in the verdict line says the same distance as the table's "fails within" column and summary.json
+    import re
+    from pathlib import Path
+    demo = Path(__file__).parent.parent / "sections" / "levee_blanket.json"
+    g = seepfe.analyse(seepfe.solve(str(demo), order=1, size=10.0)).governing
+    assert g["verdict"] == "fail"
+    m = re.search(r"failing to ([+-][0-9.]+) m from the toe", g["why"])
+    assert m, g["why"]
+    assert float(m.group(1)) == round(g["fails_within_m_of_toe"], 1)
